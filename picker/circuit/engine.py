@@ -1,0 +1,346 @@
+"""The circuit engine: DC point, return ratio, natural frequencies and steady state, batched.
+
+``evaluate_batch`` takes a :class:`DesignBatch` (arrays with a leading batch
+axis) and returns a :class:`BatchResult` of arrays.  Nothing here touches the
+store or the terminal.
+
+Start-up margin is the return ratio with respect to the transistor's
+transconductance, T(jw) = gm (v_B - v_E) / i_t for a test current i_t that
+replaces the gm source, taken at the frequency where its phase crosses zero
+(1.0 = marginal).  The running frequency and amplitude come from the
+describing-function transconductance of the exponential junction driven by a
+sinusoid of x thermal voltages, Gm/gm = 2 I1(x) / (x I0(x)), with the bias
+point shifted by the rectified current (IS scaled by I0(x)).
+
+References
+----------
+Return ratio: H. W. Bode, "Network Analysis and Feedback Amplifier Design"
+(1945); R. D. Middlebrook's and P. J. Hurst's treatments of loop gain.
+Describing function of the bipolar junction: K. K. Clarke and D. T. Hess,
+"Communication Circuits: Analysis and Design" (1971), ch. 6.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import special
+
+from picker.circuit import mna
+from picker.circuit.bias import DcPoint, HandDc, hand_dc, solve_dc
+from picker.circuit.design import DesignBatch
+from picker.circuit.device import (MJC, MJE, VJC_V, VJE_V, NpnModel, junction_c,
+                                   model_from_profile, thermal_voltage)
+from picker.circuit.topology import HandFigures
+
+#: Collector-base forward voltage the swing may reach before saturation clips it (common practice).
+VCB_FORWARD_V = 0.4
+
+
+@dataclass(frozen=True)
+class BatchResult:
+    """Engine results; each field an array over the batch (SI units)."""
+
+    freq_ideal_hz: np.ndarray
+    freq_small_signal_hz: np.ndarray
+    freq_loop_hz: np.ndarray
+    freq_hz: np.ndarray
+    margin: np.ndarray
+    growth_per_cycle: np.ndarray
+    starts: np.ndarray
+    amplitude_vpp: np.ndarray
+    vbe_drive_v: np.ndarray
+    clipped: np.ndarray
+    dc: DcPoint
+    dc_running: DcPoint
+    hybrid: mna.Hybrid
+    hand: HandFigures
+    hand_dc: HandDc
+
+
+def dc_network(batch: DesignBatch):
+    """(R1, R2, RE_total, R_collector) DC resistances from the topology's dc roles."""
+    topo, v, n = batch.topology, batch.values, batch.n
+
+    def total(role: str) -> np.ndarray:
+        out = np.zeros(n)
+        for p in topo.by_dc(role):
+            if p.ref not in v:
+                continue
+            out = out + (v[p.ref] if p.kind == "resistor" else batch.dcr_ohm.get(p.ref, 0.0))
+        return out
+
+    return total("top"), total("bottom"), total("emitter"), total("collector")
+
+
+def model_of(batch: DesignBatch) -> NpnModel:
+    return model_from_profile(batch.hfe, batch.vbe_v, batch.ft_hz, batch.cob_f, batch.vaf_v)
+
+
+def hybrid_at(dc: DcPoint, model: NpnModel, temp_c, scale=1.0) -> mna.Hybrid:
+    """Hybrid-pi parameters at a DC point; ``scale`` scales the current-borne parts (gm, g_pi, C_diff)."""
+    vt = thermal_voltage(temp_c)
+    gm = dc.ic_a / vt
+    vcb = dc.vc_v - dc.vb_v
+    return mna.Hybrid(
+        gm_s=gm * scale,
+        gpi_s=dc.ib_a / vt * scale,
+        go_s=dc.ic_a / (model.vaf_v + vcb),
+        cpi_f=model.tf_s * gm * scale + junction_c(model.cje_f, dc.vbe_v, VJE_V, MJE),
+        cmu_f=junction_c(model.cjc_f, -vcb, VJC_V, MJC),
+    )
+
+
+def loop_gain(mat: mna.Matrices, gm_s: np.ndarray, omega: np.ndarray) -> np.ndarray:
+    """Return ratio T(j omega) with respect to gm, shape of ``omega`` (n, K)."""
+    v = mna.responses(mat, omega)
+    return gm_s[:, None] * (v[..., mat.index["B"]] - v[..., mat.index["E"]])
+
+
+def scan_grid(mat: mna.Matrices, omega0, span=3.0, points=48, fine=41):
+    """Frequencies to scan per design: a log grid around ``omega0`` plus a fine grid
+    around the passive tank mode (the natural frequency with gm = 0 nearest
+    ``omega0``), spaced in units of that mode's bandwidth so that a high-Q
+    tank's narrow loop-gain circle is not stepped over.  Shape (n, points+fine), sorted.
+    """
+    coarse = omega0[:, None] * np.geomspace(1 / span, span, points)[None, :]
+    s0 = mna.natural_frequencies(mat, np.zeros_like(omega0))
+    pole = dominant_pair(s0, omega0)
+    wp = np.where(np.isfinite(pole.imag), np.abs(pole.imag), omega0)
+    bw = np.clip(np.abs(np.nan_to_num(pole.real, nan=0.0)), 1e-7 * wp, 0.05 * wp)
+    u = np.sinh(np.linspace(-6.0, 6.0, fine))  # +-200 bandwidths, densest at the centre
+    fine_w = np.clip(wp[:, None] + bw[:, None] * u[None, :], wp[:, None] / span, wp[:, None] * span)
+    return np.sort(np.concatenate([coarse, fine_w], axis=1), axis=1)
+
+
+def phase_zero(mat: mna.Matrices, gm_s, omega0, span=3.0, steps=40):
+    """Frequency where the return ratio's phase crosses zero, and its magnitude there.
+
+    Scans :func:`scan_grid`, takes the zero crossing of Im T with the largest
+    Re T, and refines it by bisection in log frequency.  Returns (omega,
+    margin); where no crossing exists, or the best one has Re T <= 0 (phase
+    180 degrees), margin is 0 and omega NaN.
+    """
+    n = gm_s.shape[0]
+    rows = np.arange(n)
+    grid = scan_grid(mat, omega0, span=span)
+    t = loop_gain(mat, gm_s, grid)
+    im, re = t.imag, t.real
+    cross = np.signbit(im[:, :-1]) != np.signbit(im[:, 1:])
+    with np.errstate(invalid="ignore", divide="ignore"):
+        frac = im[:, :-1] / (im[:, :-1] - im[:, 1:])
+        re_x = re[:, :-1] + (re[:, 1:] - re[:, :-1]) * frac  # Re T at the crossing, interpolated
+    score = np.where(cross, re_x, -np.inf)
+    j = np.argmax(score, axis=1)
+    found = np.isfinite(score[rows, j])
+    lo, hi = grid[rows, j], grid[rows, j + 1]
+    sign_lo = np.signbit(im[rows, j])
+    for _ in range(steps):  # bisection in log frequency, all designs at once
+        mid = np.sqrt(lo * hi)
+        tm = loop_gain(mat, gm_s, mid[:, None])[:, 0]
+        same = np.signbit(tm.imag) == sign_lo
+        lo = np.where(same, mid, lo)
+        hi = np.where(same, hi, mid)
+    w = np.sqrt(lo * hi)
+    tw = loop_gain(mat, gm_s, w[:, None])[:, 0]
+    found &= tw.real > 0
+    return np.where(found, w, np.nan), np.where(found, tw.real, 0.0)
+
+
+def dominant_pair(s: np.ndarray, omega_ref: np.ndarray) -> np.ndarray:
+    """The natural frequency (Im > 0) nearest in log frequency to ``omega_ref``."""
+    ok = s.imag > 1e-9 * np.abs(s).max(axis=1, keepdims=True)
+    dist = np.where(ok, np.abs(np.log(np.abs(s.imag) + 1e-300) - np.log(omega_ref)[:, None]), np.inf)
+    j = np.argmin(dist, axis=1)
+    pick = s[np.arange(s.shape[0]), j]
+    return np.where(np.isfinite(dist[np.arange(s.shape[0]), j]), pick, np.nan + 0j)
+
+
+def _bessel_ratio(x):
+    """2 I1(x) / (x I0(x)), the describing function of exp() for drive x (thermal voltages)."""
+    x = np.asarray(x, dtype=float)
+    return np.where(x > 1e-6, 2 * special.i1e(x) / (np.maximum(x, 1e-6) * special.i0e(x)), 1.0)
+
+
+def _i0(x):
+    """I0(x) computed without overflow for the drives that occur (x < 700)."""
+    return special.i0e(x) * np.exp(np.minimum(x, 700.0))
+
+
+def evaluate_batch(batch: DesignBatch, large_signal: bool = True) -> BatchResult:
+    """Evaluate every design of a batch; see the module docstring for the method."""
+    model = model_of(batch)
+    r1, r2, re, rc = dc_network(batch)
+    dc = solve_dc(r1, r2, re, rc, batch.vcc_v, model, batch.temp_c)
+    hdc = hand_dc(r1, r2, re, rc, batch.vcc_v, batch.vbe_v, batch.temp_c)
+    hand = batch.topology.hand(batch.values, hdc.re_small_ohm, rc)
+    omega_ideal = 2 * np.pi * hand.freq_ideal_hz
+
+    hy = hybrid_at(dc, model, batch.temp_c)
+    mat = mna.assemble(batch, hy)
+    w_loop, margin = phase_zero(mat, hy.gm_s, omega_ideal)
+    s = mna.natural_frequencies(mat, hy.gm_s)
+    ref = np.where(np.isfinite(w_loop), w_loop, omega_ideal)
+    pole = dominant_pair(s, ref)
+    freq_ss = np.abs(pole.imag) / (2 * np.pi)
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        growth = np.exp(2 * np.pi * pole.real / np.abs(pole.imag))
+
+    n = batch.n
+    amp = np.zeros(n)
+    x = np.zeros(n)
+    clipped = np.zeros(n, dtype=bool)
+    w_run = np.where(np.isfinite(w_loop), w_loop, 2 * np.pi * freq_ss)
+    dc_run = dc
+    if large_signal:
+        amp, x, w_run, clipped, dc_run = _steady_state(batch, model, dc, margin, w_loop, (r1, r2, re, rc))
+    freq_run = np.where(margin > 1, w_run / (2 * np.pi), np.where(np.isfinite(w_loop), w_loop / (2 * np.pi), freq_ss))
+    return BatchResult(
+        freq_ideal_hz=hand.freq_ideal_hz, freq_small_signal_hz=freq_ss,
+        freq_loop_hz=w_loop / (2 * np.pi), freq_hz=freq_run, margin=margin,
+        growth_per_cycle=growth, starts=margin > 1.0, amplitude_vpp=amp, vbe_drive_v=x,
+        clipped=clipped, dc=dc, dc_running=dc_run, hybrid=hy, hand=hand, hand_dc=hdc,
+    )
+
+
+def _steady_state(batch, model, dc, margin, w_loop, network, iterations=8):
+    """Describing-function steady state for the designs with margin > 1."""
+    r1, r2, re, rc = network
+    run = np.flatnonzero(margin > 1.0)
+    n = batch.n
+    amp, xdrive = np.zeros(n), np.zeros(n)
+    clipped = np.zeros(n, dtype=bool)
+    w_out = w_loop.copy()
+    dc_out = dc
+    if run.size == 0:
+        return amp, xdrive, w_out, clipped, dc_out
+    sub = batch.take(run)
+    sm = model_from_profile(sub.hfe, sub.vbe_v, sub.ft_hz, sub.cob_f, sub.vaf_v)
+    sdc = solve_dc(r1[run], r2[run], re[run], rc[run], sub.vcc_v, sm, sub.temp_c)
+    # 1. effective transconductance ratio r = Gm/gm at which the loop gain is exactly 1
+    r = 1.0 / margin[run]
+    w = w_loop[run]
+    for _ in range(iterations):
+        hy = hybrid_at(sdc, sm, sub.temp_c, scale=r)
+        mat = mna.assemble(sub, hy)
+        w, m = phase_zero(mat, hy.gm_s, w, span=1.3, steps=30)
+        ok = m > 0
+        r = np.where(ok, r / np.where(ok, m, 1.0), r)
+    # 2. drive amplitude at which the junction (with any unbypassed RE1 in series)
+    #    delivers the effective transconductance found in step 1
+    re1 = _degeneration(sub)
+    gm_eff = r * sdc.ic_a / vt_of(sub)
+    gc_target = gm_eff / (1 + gm_eff * re1)
+    drive, dcx = _drive_for(sub, sm, sdc, (r1[run], r2[run], re[run] - re1, rc[run]), re1, gc_target)
+    # 3. amplitudes from the network at the running point
+    v = mna.responses(mat, w[:, None])[:, 0]
+    ib, ie, ic = (mat.index[k] for k in ("B", "E", "C"))
+    vbe = v[:, ib] - v[:, ie]
+    tank = v[:, mat.index[sub.topology.tank_node]]
+    vcb = v[:, ic] - v[:, ib]
+    vx = v[:, mat.index["X"]] if "X" in mat.index else v[:, ie]
+    vbx = v[:, ib] - vx
+    tank_amp = drive * np.abs(tank / vbx)
+    cb_amp = drive * np.abs(vcb / vbx)
+    limit = np.maximum(dcx.vc_v - dcx.vb_v + VCB_FORWARD_V, 0.0)
+    clip = cb_amp > limit
+    scale = np.where(clip, limit / np.maximum(cb_amp, 1e-30), 1.0)
+    amp[run] = 2 * tank_amp * scale
+    xdrive[run] = drive * scale
+    clipped[run] = clip
+    w_out[run] = w
+    dc_out = _merge_dc(dc, run, dcx)
+    return amp, xdrive, w_out, clipped, dc_out
+
+
+def vt_of(batch: DesignBatch) -> np.ndarray:
+    return thermal_voltage(batch.temp_c)
+
+
+def _degeneration(batch: DesignBatch) -> np.ndarray:
+    """Unbypassed emitter resistance in series with the junction (role 'degeneration'), ohm."""
+    out = np.zeros(batch.n)
+    for p in batch.topology.positions:
+        if p.role == "degeneration" and p.ref in batch.values:
+            out = out + batch.values[p.ref]
+    return out
+
+
+#: Phase samples per cycle for the large-signal junction waveform.
+PHASES = 32
+
+
+def _junction_current(v_drive, v_dc, re1, log_is, vt):
+    """Current of a junction in series with ``re1`` driven by ``v_dc + v_drive cos(theta)``.
+
+    Solves v = VT ln(i/IS) + i RE1 in closed form with the Wright omega function
+    (i = VT/RE1 * omega(ln(RE1 IS / VT) + v/VT)); shape (n, PHASES).
+    """
+    theta = np.linspace(0, 2 * np.pi, PHASES, endpoint=False)
+    v = v_dc[:, None] + v_drive[:, None] * np.cos(theta)[None, :]
+    r = np.maximum(re1, 1e-6)[:, None]
+    z = np.log(r / vt[:, None]) + log_is[:, None] + v / vt[:, None]
+    return (vt[:, None] / r) * np.real(special.wrightomega(z)), theta
+
+
+def _drive_for(sub, model, dc_q, network, re1, gc_target, steps=36, inner=32):
+    """Drive amplitude (volt, base to the bypassed emitter node) giving fundamental
+    conductance ``gc_target``, with the bias point shifted self-consistently.
+
+    For each trial amplitude the DC part of the drive is solved so that the
+    average junction current satisfies the bias network; the fundamental of the
+    current over the drive amplitude is the describing-function conductance.
+    """
+    r1, r2, re_bypassed, rc = network
+    vt = vt_of(sub)
+    vth = sub.vcc_v * r2 / (r1 + r2)
+    rth = r1 * r2 / (r1 + r2)
+    from picker.circuit.device import is_at
+    log_is = np.log(is_at(model, sub.temp_c)) + np.zeros(sub.n)
+    bf = model.bf
+
+    def solve_vdc(amp):
+        lo = -amp - 2.0
+        hi = vth.copy()
+        for _ in range(inner):
+            mid = 0.5 * (lo + hi)
+            i, _ = _junction_current(amp, mid, re1, log_is, vt)
+            idc = i.mean(axis=1)
+            resid = vth - idc / (bf + 1) * rth - idc * re_bypassed - mid
+            up = resid > 0
+            lo, hi = np.where(up, mid, lo), np.where(up, hi, mid)
+        return 0.5 * (lo + hi)
+
+    lo = np.log(np.full(sub.n, 1e-4) * vt)
+    hi = np.log(np.maximum(sub.vcc_v, 1.0) * 4.0)
+    for _ in range(steps):
+        mid = 0.5 * (lo + hi)
+        amp = np.exp(mid)
+        vdc = solve_vdc(amp)
+        i, theta = _junction_current(amp, vdc, re1, log_is, vt)
+        gc = 2 * (i * np.cos(theta)[None, :]).mean(axis=1) / amp
+        big = gc > gc_target
+        lo, hi = np.where(big, mid, lo), np.where(big, hi, mid)
+    amp = np.exp(0.5 * (lo + hi))
+    vdc = solve_vdc(amp)
+    i, _ = _junction_current(amp, vdc, re1, log_is, vt)
+    idc = i.mean(axis=1)
+    ie_scale = idc / dc_q.ie_a
+    # the shifted DC point: currents scaled by the rectified average
+    dcx = DcPoint(
+        vb_v=vth - idc / (bf + 1) * rth, ve_v=idc * (re_bypassed + re1), vc_v=sub.vcc_v - idc * bf / (bf + 1) * rc,
+        vbe_v=dc_q.vbe_v, vce_v=sub.vcc_v - idc * bf / (bf + 1) * rc - idc * (re_bypassed + re1),
+        ie_a=idc, ic_a=idc * bf / (bf + 1), ib_a=idc / (bf + 1), vth_v=vth, rth_ohm=rth,
+        p_transistor_w=dc_q.p_transistor_w * ie_scale, saturated=dc_q.saturated,
+    )
+    return amp, dcx
+
+
+def _merge_dc(base: DcPoint, rows: np.ndarray, sub: DcPoint) -> DcPoint:
+    fields = {}
+    for name in DcPoint.__dataclass_fields__:
+        arr = np.array(getattr(base, name), copy=True)
+        arr[rows] = getattr(sub, name)
+        fields[name] = arr
+    return DcPoint(**fields)

@@ -1,0 +1,171 @@
+"""One design, fully checked: nominal evaluation, hFE and temperature corners, checks.
+
+This is what ``picker check`` shows; the search uses :func:`evaluate_batch`
+directly on thousands of rows.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass, field
+
+import numpy as np
+
+from picker.circuit import mna
+from picker.circuit.checks import STIFF_FRACTION, Warning_, run_checks
+from picker.circuit.design import Design, DesignBatch
+from picker.circuit.engine import BatchResult, dc_network, evaluate_batch, dominant_pair
+
+
+@dataclass(frozen=True)
+class Corner:
+    hfe: float
+    temp_c: float
+    margin: float
+    freq_hz: float
+    ie_a: float
+    starts: bool
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """Everything ``check`` reports for one design (SI units, plain numbers)."""
+
+    topology: str
+    values: dict
+    defaulted: tuple
+    freq_ideal_hz: float
+    freq_small_signal_hz: float
+    freq_loop_hz: float
+    freq_hz: float
+    margin: float
+    margin_worst: float
+    starts: bool
+    growth_per_cycle: float
+    amplitude_vpp: float
+    clipped: bool
+    saturated: bool
+    divider_stiff: bool
+    loaded_q: float
+    bias: dict
+    hand: dict
+    power_w: dict
+    p_transistor_w: float
+    coupling_reactance: dict
+    corners: list
+    warnings: list = field(default_factory=list)
+
+    def as_json(self) -> dict:
+        d = asdict(self)
+        d["defaulted"] = list(self.defaulted)
+        d["warnings"] = [w.as_dict() if isinstance(w, Warning_) else w for w in self.warnings]
+        d["coupling_reactance"] = {k: {"reactance_ohm": x, "against_ohm": z}
+                                   for k, (x, z) in self.coupling_reactance.items()}
+        return _clean(d)
+
+
+def _clean(obj):
+    """JSON-safe: NaN and inf become None, numpy scalars plain numbers."""
+    if isinstance(obj, dict):
+        return {k: _clean(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_clean(v) for v in obj]
+    if isinstance(obj, (np.bool_, bool)):
+        return bool(obj)
+    if isinstance(obj, (np.floating, float)):
+        return float(obj) if np.isfinite(obj) else None
+    if isinstance(obj, np.integer):
+        return int(obj)
+    return obj
+
+
+def _corner_batch(design: Design, temps: tuple[float, ...]) -> tuple[DesignBatch, list]:
+    npn = design.npn
+    hfes = (npn.hfe_nominal, npn.hfe_min, npn.hfe_max)
+    combos = [(h, t) for t in temps for h in hfes]
+    designs = [design.with_values() for _ in combos]
+    batch = DesignBatch.from_designs(designs)
+    return batch.with_(hfe=np.array([h for h, _ in combos]),
+                       temp_c=np.array([t for _, t in combos])), combos
+
+
+def check_design(design: Design, temps: tuple[float, ...] | None = None) -> Evaluation:
+    """Evaluate ``design`` at nominal hFE and its temperature, plus corners.
+
+    Corners are hFE min/typ/max at each temperature of ``temps`` (default: the
+    design's own temperature only).  Row 0 is the nominal evaluation.
+    """
+    temps = tuple(temps) if temps else (design.temp_c,)
+    if design.temp_c not in temps:
+        temps = (design.temp_c,) + temps
+    temps = (design.temp_c,) + tuple(t for t in temps if t != design.temp_c)
+    batch, combos = _corner_batch(design, temps)
+    res = evaluate_batch(batch)
+    return _summarise(design, batch, res, combos)
+
+
+def _summarise(design: Design, batch: DesignBatch, res: BatchResult, combos) -> Evaluation:
+    i = 0
+    dc = res.dc
+    r1, r2, re, rc = (float(a[i]) for a in dc_network(batch))
+    vx = float(dc.ie_a[i] * batch.values["RE"][i]) if "RE1" in batch.values and "RE" in batch.values else float(dc.ve_v[i])
+    node_v = {"VCC": design.vcc_v, "GND": 0.0, "B": float(dc.vb_v[i]), "E": float(dc.ve_v[i]),
+              "C": float(dc.vc_v[i]), "X": vx}
+    topo = design.topo
+    power = {}
+    for p in topo.by_kind("resistor"):
+        if p.ref in design.values and p.a in node_v and p.b in node_v:
+            v = node_v[p.a] - node_v[p.b]
+            power[p.ref] = v * v / design.values[p.ref]
+
+    hy = res.hybrid
+    gm = float(hy.gm_s[i])
+    rpi = 1.0 / float(hy.gpi_s[i])
+    re1 = float(design.values.get("RE1", 0.0) or 0.0)
+    f = float(res.freq_hz[i]) if np.isfinite(res.freq_hz[i]) else float(res.freq_ideal_hz[i])
+    rbias = r1 * r2 / (r1 + r2)
+    r_in = 1.0 / (1.0 / rbias + 1.0 / (rpi + (float(batch.hfe[i]) + 1) * re1))
+    against = {"base": r_in, "collector": rc if rc > 0 else r_in,
+               "emitter": min(float(design.values.get("RE", np.inf)), 1.0 / gm + re1)}
+    coupling = {}
+    for p in topo.positions:
+        if p.feeds and p.ref in design.values:
+            coupling[p.ref] = (1.0 / (2 * np.pi * f * design.values[p.ref]), against[p.feeds])
+
+    one = batch.take(np.array([i]))
+    mat = mna.assemble(one, mna.Hybrid(*(np.asarray(getattr(hy, k))[[i]] for k in
+                                          ("gm_s", "gpi_s", "go_s", "cpi_f", "cmu_f"))))
+    s0 = mna.natural_frequencies(mat, np.zeros(1))
+    pole = dominant_pair(s0, np.array([2 * np.pi * f]))[0]
+    loaded_q = float(abs(pole.imag) / (2 * abs(pole.real))) if np.isfinite(pole.real) and pole.real != 0 else float("inf")
+
+    hfe_min = design.npn.hfe_min
+    stiff = (rbias / (hfe_min + 1)) <= STIFF_FRACTION * re
+    corners = [Corner(hfe=h, temp_c=t, margin=float(res.margin[k]), freq_hz=float(res.freq_hz[k]),
+                      ie_a=float(res.dc.ie_a[k]), starts=bool(res.starts[k]))
+               for k, (h, t) in enumerate(combos)]
+    hd, hf = res.hand_dc, res.hand
+    ev = Evaluation(
+        topology=design.topology, values=dict(design.values), defaulted=tuple(design.defaulted),
+        freq_ideal_hz=float(res.freq_ideal_hz[i]), freq_small_signal_hz=float(res.freq_small_signal_hz[i]),
+        freq_loop_hz=float(res.freq_loop_hz[i]), freq_hz=float(res.freq_hz[i]),
+        margin=float(res.margin[i]), margin_worst=float(np.min(res.margin)),
+        starts=bool(res.starts[i]), growth_per_cycle=float(res.growth_per_cycle[i]),
+        amplitude_vpp=float(res.amplitude_vpp[i]), clipped=bool(res.clipped[i]),
+        saturated=bool(dc.saturated[i]), divider_stiff=bool(stiff), loaded_q=loaded_q,
+        bias={"vb_v": node_v["B"], "ve_v": node_v["E"], "vc_v": node_v["C"], "vx_v": vx,
+              "ie_a": float(dc.ie_a[i]), "ic_a": float(dc.ic_a[i]), "vce_v": float(dc.vce_v[i]),
+              "vbe_v": float(dc.vbe_v[i]), "gm_s": gm, "r_pi_ohm": rpi},
+        hand={"vb_v": float(hd.vb_v[i]), "ve_v": float(hd.ve_v[i]), "vc_v": float(hd.vc_v[i]),
+              "ie_a": float(hd.ie_a[i]), "re_ohm": float(hd.re_small_ohm[i]),
+              "gain": float(hf.gain[i]), "feedback": float(hf.feedback[i]),
+              "loop_gain": float(hf.loop_gain[i]), "freq_hz": float(hf.freq_ideal_hz[i])},
+        power_w=power, p_transistor_w=float(dc.p_transistor_w[i]),
+        coupling_reactance=coupling, corners=corners,
+    )
+    return _with_warnings(ev, run_checks(design, ev))
+
+
+def _with_warnings(ev: Evaluation, warnings: list) -> Evaluation:
+    from dataclasses import replace
+
+    return replace(ev, warnings=warnings)
