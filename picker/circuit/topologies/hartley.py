@@ -11,7 +11,9 @@ TANK = (
     Position("CC1", "capacitor", "C", "T", "coupling", 100e-9, feeds="collector"),
     Position("L1", "inductor", "T", "GND", "tank", 470e-6),
     Position("C1", "capacitor", "T", "F", "tank", 10e-9),
-    Position("L2", "inductor", "F", "GND", "tank", 47e-6),
+    # L2 is declared GND -> F so that both coils are traversed T -> GND -> F: a
+    # positive K is then series-aiding, as in one tapped coil (SPICE dot convention).
+    Position("L2", "inductor", "GND", "F", "tank", 47e-6),
     Position("CC2", "capacitor", "F", "B", "coupling", 100e-9, feeds="base"),
     Position("K", "coupling", "L1", "L2", "tank", 0.0,
              note="coupling coefficient of L1 and L2: 0 for two separate coils, near 1 for a tapped coil"),
