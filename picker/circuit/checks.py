@@ -51,7 +51,11 @@ def run_checks(design, ev) -> list[Warning_]:
     add = lambda code, msg: out.append(Warning_(code, msg))  # noqa: E731
     topo = design.topo
     node_v = {"VCC": design.vcc_v, "GND": 0.0, "B": ev.bias["vb_v"], "E": ev.bias["ve_v"],
-              "C": ev.bias["vc_v"], "X": ev.bias.get("vx_v", ev.bias["ve_v"])}
+              "C": ev.bias["vc_v"], "X": ev.bias.get("vx_v", ev.bias["ve_v"]),
+              # Tank nodes sit at ground potential in DC: through the inductors (Hartley) or,
+              # where coupling capacitors isolate the tank, through leakage; so CC1 and CC2
+              # carry the full collector and base voltages.
+              "T": 0.0, "F": 0.0, "M": 0.0}
     swing = ev.amplitude_vpp / 2
     f = ev.freq_hz if np.isfinite(ev.freq_hz) else ev.freq_ideal_hz
 

@@ -80,7 +80,10 @@ class Design:
 
 
 def complete_values(topology: Topology, given: Mapping[str, float]) -> tuple[dict[str, float], tuple[str, ...]]:
-    """Fill positions the user left out with the topology's defaults; name them."""
+    """Fill positions the user left out with the topology's defaults; name them.
+
+    Optional positions (RE1) stay absent unless given; 0 also means absent (a short).
+    """
     values: dict[str, float] = {}
     for ref, v in given.items():
         values[topology.position(ref).ref] = float(v)
