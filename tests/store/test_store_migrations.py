@@ -1,0 +1,143 @@
+"""Schema versions: fresh stores, the v1 -> v2 upgrade with backup, refusals."""
+
+import datetime as dt
+import importlib
+import sqlite3
+
+import pytest
+from sqlalchemy import create_engine, exc, inspect, text
+
+from picker.errors import PickerError
+from picker.store import SCHEMA_VERSION, get_part, ledger_balance_ok, open_store, resolve_db_url
+from picker.store.migrate import load_migrations
+from picker.store.models import Base
+
+
+def _columns(engine):
+    insp = inspect(engine)
+    return {t: {c["name"]: c["nullable"] for c in insp.get_columns(t)} for t in insp.get_table_names()}
+
+
+def test_migrations_are_numbered_without_gaps_up_to_current():
+    assert [m.version for m in load_migrations()] == list(range(1, SCHEMA_VERSION + 1))
+    assert SCHEMA_VERSION >= 2
+
+
+def test_fresh_store_matches_the_models(store):
+    with store.engine.connect() as conn:
+        assert conn.execute(text("SELECT version FROM schema_version")).scalar_one() == SCHEMA_VERSION
+    got = _columns(store.engine)
+    expected = {t.name: {c.name for c in t.columns} for t in Base.metadata.sorted_tables}
+    assert {t: set(cols) for t, cols in got.items()} == expected
+
+
+def test_qty_check_constraint_and_foreign_keys_are_enforced(store):
+    with store.engine.connect() as conn:
+        conn.execute(text("INSERT INTO parts (kind, value, qty, bin) VALUES ('resistor', 1000, 1, 'R-A1')"))
+        with pytest.raises(exc.IntegrityError):
+            conn.execute(text("UPDATE parts SET qty = -1"))
+        conn.rollback()
+        with pytest.raises(exc.IntegrityError):
+            conn.execute(
+                text("INSERT INTO ledger (part_id, delta, reason, created_at) VALUES (999, 1, 'x', '2024-01-01')")
+            )
+
+
+def _make_v1_store(path):
+    """A store built by migration 0001 only, with a few rows written as v1 code would."""
+    engine = create_engine(f"sqlite:///{path}")
+    v1 = importlib.import_module("db.migrations.0001_initial")
+    with engine.begin() as conn:
+        v1.upgrade(conn)
+        conn.execute(text("INSERT INTO schema_version (version) VALUES (1)"))
+        conn.execute(text(
+            "INSERT INTO parts (id, kind, value, tolerance, qty, bin, voltage_v, dielectric) "
+            "VALUES (1, 'capacitor', 4.7e-9, 0.05, 12, 'C-A9', 50, 'C0G')"
+        ))  # fmt: skip
+        conn.execute(text(
+            "INSERT INTO parts (id, kind, qty, bin, name, hfe_min, hfe_max) "
+            "VALUES (2, 'npn', 5, 'Q-1', 'npn-general', 100, 300)"
+        ))  # fmt: skip
+        when = dt.datetime(2024, 3, 1, 12, 0, 0)
+        for pid, delta in [(1, 20), (1, -8), (2, 5)]:
+            conn.execute(
+                text("INSERT INTO ledger (part_id, delta, reason, created_at) VALUES (:p, :d, 'v1 era', :w)"),
+                {"p": pid, "d": delta, "w": when},
+            )
+    engine.dispose()
+
+
+def test_v1_store_is_upgraded_with_a_backup_and_data_intact(tmp_path):
+    path = tmp_path / "bench.sqlite"
+    _make_v1_store(path)
+    v1_cols = _columns(create_engine(f"sqlite:///{path}"))
+    assert "note" not in v1_cols["parts"] and "user_name" not in v1_cols["ledger"]
+
+    st = open_store(resolve_db_url(str(path)))
+    try:
+        assert st.upgraded_from == 1
+        backups = sorted(tmp_path.glob("bench.v1-backup-*.sqlite"))
+        assert backups == [st.backup_path]
+        # the backup is still a v1 store with the same rows
+        con = sqlite3.connect(backups[0])
+        assert con.execute("SELECT version FROM schema_version").fetchone() == (1,)
+        assert con.execute("SELECT COUNT(*) FROM ledger").fetchone() == (3,)
+        con.close()
+        with st.engine.connect() as conn:
+            assert conn.execute(text("SELECT version FROM schema_version")).scalar_one() == SCHEMA_VERSION
+        with st.Session.begin() as s:
+            cap, npn = get_part(s, 1), get_part(s, 2)
+            assert (cap.kind, cap.value, cap.tolerance, cap.qty, cap.bin, cap.dielectric) == (
+                "capacitor", 4.7e-9, 0.05, 12, "C-A9", "C0G")  # fmt: skip
+            assert (npn.name, npn.hfe_min, npn.hfe_max, npn.qty) == ("npn-general", 100, 300, 5)
+            assert cap.note is None
+            assert [(e.delta, e.user) for e in cap.ledger] == [(20, None), (-8, None)]
+            assert cap.ledger[0].created_at == dt.datetime(2024, 3, 1, 12, tzinfo=dt.timezone.utc)
+            assert ledger_balance_ok(s) == []
+    finally:
+        st.close()
+    # opening again does nothing more
+    st2 = open_store(resolve_db_url(str(path)))
+    assert st2.upgraded_from is None and st2.backup_path is None
+    st2.close()
+    assert len(list(tmp_path.glob("bench.v1-backup-*.sqlite"))) == 1
+
+
+def test_store_newer_than_the_code_is_refused(tmp_path):
+    path = tmp_path / "future.sqlite"
+    open_store(resolve_db_url(str(path))).close()
+    con = sqlite3.connect(path)
+    con.execute("UPDATE schema_version SET version = ?", (SCHEMA_VERSION + 1,))
+    con.commit()
+    con.close()
+    with pytest.raises(PickerError, match=f"schema version {SCHEMA_VERSION + 1}.*knows up to {SCHEMA_VERSION}"):
+        open_store(resolve_db_url(str(path)))
+
+
+def test_non_file_store_is_not_upgraded_without_permission(tmp_path):
+    # A SQLite URI URL counts as "not a plain file" (like a server database): no backup is possible here.
+    path = tmp_path / "uri.sqlite"
+    _make_v1_store(path)
+    url = f"sqlite:///file:{path}?uri=true"
+    with pytest.raises(PickerError, match="stock upgrade --yes"):
+        open_store(url)
+    st = open_store(url, allow_upgrade=True)
+    assert st.upgraded_from == 1 and st.backup_path is None
+    st.close()
+
+
+def test_foreign_database_is_refused(tmp_path):
+    path = tmp_path / "other.sqlite"
+    con = sqlite3.connect(path)
+    con.execute("CREATE TABLE invoices (id INTEGER)")
+    con.commit()
+    con.close()
+    with pytest.raises(PickerError, match="not a picker store"):
+        open_store(resolve_db_url(str(path)))
+
+
+def test_file_that_is_not_a_database(tmp_path):
+    path = tmp_path / "notes.sqlite"
+    path.write_text("just some notes\n" * 50)
+    with pytest.raises(PickerError, match="cannot open store"):
+        open_store(resolve_db_url(str(path)))
