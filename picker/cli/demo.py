@@ -211,6 +211,32 @@ def demo(
         env.use_db(db)
     result = run_demo(env.db_url if env.db_given else None)
     render_demo(env, result, as_json=as_json)
+    if not as_json:
+        show_demo_check(env, env.db_url if env.db_given else None)
+
+
+def show_demo_check(env: Env, db_url: str | None) -> None:
+    """Check the demo design (parts from the demo store) and print the check report."""
+    from picker.circuit.evaluate import check_design
+    from picker.cli.demo_design import demo_design
+    from picker.report import bode, check_report
+
+    if db_url is None:
+        with demo_store(None) as (store, _):
+            with store.Session.begin() as session:
+                design = demo_design(session)
+    else:
+        store = open_store(db_url)
+        try:
+            with store.Session.begin() as session:
+                design = demo_design(session)
+        finally:
+            store.close()
+    ev = check_design(design, (0.0, 50.0))
+    print_message(env, "")
+    print_message(env, "Demo design checked from these parts (picker check --part REF=id:N ...):")
+    env.out.print(check_report.check_report(design, ev, npn_source="first npn in the demo store",
+                                            split=bode.loop_split(design, ev.freq_loop_hz)))
 
 
 def register(parent: typer.Typer) -> None:

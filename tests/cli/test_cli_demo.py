@@ -65,3 +65,20 @@ def test_demo_local_db_option(run, tmp_path):
     target = tmp_path / "kept.sqlite"
     r = run("demo", "--db", target, db=False)
     assert r.exit_code == 0 and target.exists()
+
+
+def test_demo_checks_a_design_built_from_demo_parts():
+    """`picker demo` ends with a check of the demo design whose every part is a store part."""
+    from picker.circuit.evaluate import check_design
+    from picker.cli.demo import demo_store
+    from picker.cli.demo_design import DEMO_VALUES, demo_design
+
+    with demo_store(None) as (store, _):
+        with store.Session.begin() as session:
+            design = demo_design(session)
+    assert set(DEMO_VALUES) <= set(design.parts)
+    assert all(info.part_id is not None for info in design.parts.values())
+    assert design.parts["L1"].dcr_ohm  # the store's inductor brings its DC resistance
+    ev = check_design(design, (0.0, 50.0))
+    assert ev.starts and ev.margin_worst > 2.0
+    assert abs(ev.freq_hz / 77e3 - 1) < 0.05
