@@ -8,9 +8,12 @@ Start-up margin is the return ratio with respect to the transistor's
 transconductance, T(jw) = gm (v_B - v_E) / i_t for a test current i_t that
 replaces the gm source, taken at the frequency where its phase crosses zero
 (1.0 = marginal).  The running frequency and amplitude come from the
-describing-function transconductance of the exponential junction driven by a
-sinusoid of x thermal voltages, Gm/gm = 2 I1(x) / (x I0(x)), with the bias
-point shifted by the rectified current (IS scaled by I0(x)).
+describing function of the exponential junction, in series with any
+unbypassed emitter resistance, driven by a sinusoid: the current waveform is
+solved in closed form (Wright omega function) over one cycle, with the DC part
+of the drive set so that the average current satisfies the bias network (the
+rectified current shifts the bias point).  With no series resistance this is
+the classical Gm/gm = 2 I1(x) / (x I0(x)) for a drive of x thermal voltages.
 
 References
 ----------
@@ -30,7 +33,7 @@ from scipy import special
 from picker.circuit import mna
 from picker.circuit.bias import DcPoint, HandDc, hand_dc, solve_dc
 from picker.circuit.design import DesignBatch
-from picker.circuit.device import (MJC, MJE, VJC_V, VJE_V, NpnModel, junction_c,
+from picker.circuit.device import (MJC, MJE, VJC_V, VJE_V, NpnModel, is_at, junction_c,
                                    model_from_profile, thermal_voltage)
 from picker.circuit.topology import HandFigures
 
@@ -155,17 +158,6 @@ def dominant_pair(s: np.ndarray, omega_ref: np.ndarray) -> np.ndarray:
     j = np.argmin(dist, axis=1)
     pick = s[np.arange(s.shape[0]), j]
     return np.where(np.isfinite(dist[np.arange(s.shape[0]), j]), pick, np.nan + 0j)
-
-
-def _bessel_ratio(x):
-    """2 I1(x) / (x I0(x)), the describing function of exp() for drive x (thermal voltages)."""
-    x = np.asarray(x, dtype=float)
-    return np.where(x > 1e-6, 2 * special.i1e(x) / (np.maximum(x, 1e-6) * special.i0e(x)), 1.0)
-
-
-def _i0(x):
-    """I0(x) computed without overflow for the drives that occur (x < 700)."""
-    return special.i0e(x) * np.exp(np.minimum(x, 700.0))
 
 
 def evaluate_batch(batch: DesignBatch, large_signal: bool = True) -> BatchResult:
@@ -296,7 +288,6 @@ def _drive_for(sub, model, dc_q, network, re1, gc_target, steps=36, inner=32):
     vt = vt_of(sub)
     vth = sub.vcc_v * r2 / (r1 + r2)
     rth = r1 * r2 / (r1 + r2)
-    from picker.circuit.device import is_at
     log_is = np.log(is_at(model, sub.temp_c)) + np.zeros(sub.n)
     bf = model.bf
 
