@@ -208,8 +208,9 @@ def _steady_state(batch, model, dc, margin, w_loop, network, iterations=8):
     if run.size == 0:
         return amp, xdrive, w_out, clipped, dc_out
     sub = batch.take(run)
-    sm = model_from_profile(sub.hfe, sub.vbe_v, sub.ft_hz, sub.cob_f, sub.vaf_v)
-    sdc = solve_dc(r1[run], r2[run], re[run], rc[run], sub.vcc_v, sm, sub.temp_c)
+    sm = NpnModel(**{k: np.broadcast_to(getattr(model, k), (n,))[run]
+                     for k in NpnModel.__dataclass_fields__})
+    sdc = _take_dc(dc, run)
     # 1. effective transconductance ratio r = Gm/gm at which the loop gain is exactly 1
     r = 1.0 / margin[run]
     w = w_loop[run]
@@ -326,6 +327,11 @@ def _drive_for(sub, model, dc_q, network, re1, gc_target, steps=36, inner=32):
         p_transistor_w=dc_q.p_transistor_w * ie_scale, saturated=dc_q.saturated,
     )
     return amp, dcx
+
+
+def _take_dc(dc: DcPoint, rows: np.ndarray) -> DcPoint:
+    """Rows ``rows`` of a DC point."""
+    return DcPoint(**{k: np.asarray(getattr(dc, k))[rows] for k in DcPoint.__dataclass_fields__})
 
 
 def _merge_dc(base: DcPoint, rows: np.ndarray, sub: DcPoint) -> DcPoint:

@@ -6,7 +6,7 @@ directly on thousands of rows.
 
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 
 import numpy as np
 
@@ -94,10 +94,7 @@ def check_design(design: Design, temps: tuple[float, ...] | None = None) -> Eval
     Corners are hFE min/typ/max at each temperature of ``temps`` (default: the
     design's own temperature only).  Row 0 is the nominal evaluation.
     """
-    temps = tuple(temps) if temps else (design.temp_c,)
-    if design.temp_c not in temps:
-        temps = (design.temp_c,) + temps
-    temps = (design.temp_c,) + tuple(t for t in temps if t != design.temp_c)
+    temps = (design.temp_c,) + tuple(t for t in (temps or ()) if t != design.temp_c)
     batch, combos = _corner_batch(design, temps)
     res = evaluate_batch(batch)
     return _summarise(design, batch, res, combos)
@@ -162,10 +159,5 @@ def _summarise(design: Design, batch: DesignBatch, res: BatchResult, combos) -> 
         power_w=power, p_transistor_w=float(dc.p_transistor_w[i]),
         coupling_reactance=coupling, corners=corners,
     )
-    return _with_warnings(ev, run_checks(design, ev))
+    return replace(ev, warnings=run_checks(design, ev))
 
-
-def _with_warnings(ev: Evaluation, warnings: list) -> Evaluation:
-    from dataclasses import replace
-
-    return replace(ev, warnings=warnings)

@@ -386,14 +386,8 @@ def deck_ac_open_loop(design: Design, fstart_hz: float, fstop_hz: float, points:
         Element("LBIG_CP", (cp(ret), q2[pin]), _num(BIG_L_H), True),
         Element("CBIG_CP", (ret, q2[pin]), _num(BIG_C_F), False),
     ]
-    lines = [title or f"picker {topo.name} open loop ac"]
-    lines += [_line(e) for e in _tie_floating(out + copied)]
-    lines.append(model_card(design, hfe))
-    lines.append(f".temp {_num(design.temp_c)}")
-    lines.append(f".ac dec {int(points)} {_num(fstart_hz)} {_num(fstop_hz)}")
-    lines += [".control", "set wr_singlescale", "set wr_vecnames", f"set numdgt={WRDATA_DIGITS}",
-              "run", f"wrdata {out_file} v({ret}) v({drv})", "quit", ".endc", ".end"]
-    return "\n".join(lines) + "\n"
+    return _ac_deck(title or f"picker {topo.name} open loop ac", out + copied, design, hfe,
+                    fstart_hz, fstop_hz, points, out_file, f"v({ret}) v({drv})")
 
 
 def deck_ac_injection(design: Design, fstart_hz: float, fstop_hz: float, points: int, *,
@@ -433,8 +427,13 @@ def deck_ac_injection(design: Design, fstart_hz: float, fstop_hz: float, points:
         out.append(Element("VM", (ret, drv), "DC 0", True))
         out.append(Element("IZ", ("0", ret), "DC 0 AC 1", False))
         probes = "i(VM)"
-    lines = [title or f"picker {topo.name} {inject} injection ac"]
-    lines += [_line(e) for e in _tie_floating(out)]
+    return _ac_deck(title or f"picker {topo.name} {inject} injection ac", out, design, hfe,
+                    fstart_hz, fstop_hz, points, out_file, probes)
+
+
+def _ac_deck(title, elems, design, hfe, fstart_hz, fstop_hz, points, out_file, probes) -> str:
+    """Deck text for an AC sweep of ``elems`` writing ``probes`` with wrdata."""
+    lines = [title] + [_line(e) for e in _tie_floating(elems)]
     lines.append(model_card(design, hfe))
     lines.append(f".temp {_num(design.temp_c)}")
     lines.append(f".ac dec {int(points)} {_num(fstart_hz)} {_num(fstop_hz)}")
