@@ -13,6 +13,8 @@ import numpy as np
 from picker.circuit import mna
 from picker.circuit.checks import STIFF_FRACTION, Warning_, run_checks
 from picker.circuit.design import Design, DesignBatch
+from picker.circuit.dynamics import Dynamics
+from picker.circuit.dynamics import predict as predict_dynamics
 from picker.circuit.engine import BatchResult, dc_network, evaluate_batch, dominant_pair
 
 
@@ -24,6 +26,7 @@ class Corner:
     freq_hz: float
     ie_a: float
     starts: bool
+    amplitude_settles: bool | None = None
 
 
 @dataclass(frozen=True)
@@ -52,6 +55,11 @@ class Evaluation:
     p_transistor_w: float
     coupling_reactance: dict
     corners: list
+    amplitude_settles: bool | None = None
+    settle_time_s: float | None = None
+    burst_period_s: float | None = None
+    dynamics: dict = field(default_factory=dict)
+    remedies: list = field(default_factory=list)
     warnings: list = field(default_factory=list)
 
     def as_json(self) -> dict:
@@ -88,19 +96,31 @@ def _corner_batch(design: Design, temps: tuple[float, ...]) -> tuple[DesignBatch
                        temp_c=np.array([t for _, t in combos])), combos
 
 
-def check_design(design: Design, temps: tuple[float, ...] | None = None) -> Evaluation:
+def check_design(design: Design, temps: tuple[float, ...] | None = None,
+                 integrate: bool = True) -> Evaluation:
     """Evaluate ``design`` at nominal hFE and its temperature, plus corners.
 
     Corners are hFE min/typ/max at each temperature of ``temps`` (default: the
-    design's own temperature only).  Row 0 is the nominal evaluation.
+    design's own temperature only).  Row 0 is the nominal evaluation.  The
+    envelope dynamics are judged at every corner; with ``integrate`` the
+    nominal row's envelope is also integrated (settling time, burst period).
     """
     temps = (design.temp_c,) + tuple(t for t in (temps or ()) if t != design.temp_c)
     batch, combos = _corner_batch(design, temps)
     res = evaluate_batch(batch)
-    return _summarise(design, batch, res, combos)
+    dyn = predict_dynamics(batch, res, integrate_rows=(0,) if integrate else ())
+    return _summarise(design, batch, res, combos, dyn)
 
 
-def _summarise(design: Design, batch: DesignBatch, res: BatchResult, combos) -> Evaluation:
+def _opt_bool(x: float) -> bool | None:
+    return None if not np.isfinite(x) else bool(x > 0.5)
+
+
+def _opt_float(x: float) -> float | None:
+    return float(x) if np.isfinite(x) else None
+
+
+def _summarise(design: Design, batch: DesignBatch, res: BatchResult, combos, dyn: Dynamics) -> Evaluation:
     i = 0
     dc = res.dc
     r1, r2, re, rc = (float(a[i]) for a in dc_network(batch))
@@ -138,7 +158,8 @@ def _summarise(design: Design, batch: DesignBatch, res: BatchResult, combos) -> 
     hfe_min = design.npn.hfe_min
     stiff = (rbias / (hfe_min + 1)) <= STIFF_FRACTION * re
     corners = [Corner(hfe=h, temp_c=t, margin=float(res.margin[k]), freq_hz=float(res.freq_hz[k]),
-                      ie_a=float(res.dc.ie_a[k]), starts=bool(res.starts[k]))
+                      ie_a=float(res.dc.ie_a[k]), starts=bool(res.starts[k]),
+                      amplitude_settles=_opt_bool(dyn.amplitude_settles[k]))
                for k, (h, t) in enumerate(combos)]
     hd, hf = res.hand_dc, res.hand
     ev = Evaluation(
@@ -158,6 +179,12 @@ def _summarise(design: Design, batch: DesignBatch, res: BatchResult, combos) -> 
               "loop_gain": float(hf.loop_gain[i]), "freq_hz": float(hf.freq_ideal_hz[i])},
         power_w=power, p_transistor_w=float(dc.p_transistor_w[i]),
         coupling_reactance=coupling, corners=corners,
+        amplitude_settles=_opt_bool(dyn.amplitude_settles[i]),
+        settle_time_s=_opt_float(dyn.settle_time_s[i]), burst_period_s=_opt_float(dyn.burst_period_s[i]),
+        dynamics={"growth_rate_per_s": _opt_float(dyn.growth_rate[i]), "drive_v": _opt_float(dyn.drive_v[i]),
+                  "tau_bias_s": _opt_float(dyn.tau_bias_s[i]),
+                  "settles_all_corners": bool(np.all(dyn.settles() | ~np.asarray(res.starts))),
+                  "integrated": bool(len(dyn.envelope_t_s) > 0)},
     )
     return replace(ev, warnings=run_checks(design, ev))
 

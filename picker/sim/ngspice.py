@@ -24,7 +24,8 @@ from pathlib import Path
 import numpy as np
 from scipy.signal import find_peaks
 
-from picker.circuit import spice
+from picker.circuit import envelope, spice
+from picker.circuit.envelope import BURST_HIGH
 from picker.errors import PickerError
 
 NOT_INSTALLED = "ngspice is not installed; on Debian/Ubuntu: apt-get install ngspice"
@@ -41,16 +42,6 @@ EARLY_CYCLES = 10
 START_FACTOR = 3.0
 #: Early growth per cycle that counts as started if the envelope has not died by the end.
 START_GROWTH = 0.01
-#: Envelope levels, as fractions of its maximum, of an established burst and of a collapse.
-BURST_HIGH = 0.5
-BURST_LOW = 0.2
-#: Settling band around the final envelope, relative.
-SETTLE_BAND = 0.05
-#: Share of the record (after the kick) whose median envelope is the final value.
-FINAL_SHARE = 0.05
-#: Least steady span that makes a record settled: this many periods and this share of the record.
-MIN_STEADY_PERIODS = 10
-MIN_STEADY_SHARE = 0.1
 #: Share of the record used for frequency and amplitude when it neither settles nor bursts.
 FALLBACK_SHARE = 0.25
 #: Within a burst, the flat part is where the envelope is at least this share of the burst's maximum.
@@ -301,24 +292,6 @@ def rising_crossings(t: np.ndarray, w: np.ndarray) -> np.ndarray:
     return t[i] - w[i] * (t[i + 1] - t[i]) / (w[i + 1] - w[i])
 
 
-def _bursts(te, env, t_ref):
-    """Collapse and rise times of the envelope after ``t_ref`` (two-level hysteresis)."""
-    peak = env.max()
-    sel = te >= t_ref
-    state = np.where(env >= BURST_HIGH * peak, 1, np.where(env < BURST_LOW * peak, -1, 0))[sel]
-    ts = te[sel]
-    keep = state != 0
-    state, ts = state[keep], ts[keep]
-    if state.size == 0:
-        return np.empty(0), np.empty(0)
-    change = np.flatnonzero(np.diff(state) != 0) + 1
-    falls = ts[change[state[change] == -1]]
-    rises = ts[change[state[change] == 1]]
-    if state[0] == 1:
-        rises = np.concatenate(([ts[0]], rises))
-    return falls, rises
-
-
 def measure_oscillation(t_s, v, *, f_guess_hz: float | None = None) -> WaveformMeasure:
     """Measure a kicked oscillator's transient record.
 
@@ -375,33 +348,9 @@ def measure_oscillation(t_s, v, *, f_guess_hz: float | None = None) -> WaveformM
     started = bool(late_peak >= START_FACTOR * a_ref
                    or (growth >= 1 + START_GROWTH and env[-1] >= a_ref))
 
-    falls, rises = _bursts(te, env, t_ref)
-    recovered = [f for f in falls if np.any(rises > f)]
-    bursts = len(recovered) >= 1
-    burst_period = None
-    if bursts:
-        if falls.size >= 2:
-            burst_period = float(np.median(np.diff(falls)))
-        elif rises.size >= 2:
-            burst_period = float(np.median(np.diff(rises)))
-
-    settle = None
+    cls = envelope.classify(te, env, t_ref, period)
+    falls, rises, bursts, settle = cls.falls_s, cls.rises_s, cls.bursts, cls.settle_time_s
     span = t_end - t_ref
-    if not bursts and span > 0:
-        after = te >= t_ref
-        tail = te >= t_end - FINAL_SHARE * span
-        final = float(np.median(env[-max(3, np.count_nonzero(tail)):]))
-        out = after & (np.abs(env - final) > SETTLE_BAND * final)
-        if final <= 0:
-            settle = None
-        elif np.any(out):
-            k = int(np.flatnonzero(out)[-1])
-            settle = float(te[k + 1]) if k + 1 < te.size else None
-        else:
-            settle = float(t_ref)
-        if settle is not None and t_end - settle < max(MIN_STEADY_PERIODS * period,
-                                                       MIN_STEADY_SHARE * span):
-            settle = None
 
     if settle is not None:
         window = (settle, t_end)
@@ -417,8 +366,8 @@ def measure_oscillation(t_s, v, *, f_guess_hz: float | None = None) -> WaveformM
     tc = tc[(tc >= window[0]) & (tc <= window[1])]
     freq = float((tc.size - 1) / (tc[-1] - tc[0])) if tc.size >= 3 else float("nan")
     return WaveformMeasure(
-        started=started, growth_per_cycle=growth, bursts=bursts, burst_count=len(recovered),
-        burst_period_s=burst_period, settle_time_s=settle, freq_hz=freq, amplitude_vpp=amp,
+        started=started, growth_per_cycle=growth, bursts=bursts, burst_count=cls.burst_count,
+        burst_period_s=cls.burst_period_s, settle_time_s=settle, freq_hz=freq, amplitude_vpp=amp,
         window_s=(float(window[0]), float(window[1])), envelope_t_s=te, envelope_vpp=env,
     )
 

@@ -1,0 +1,675 @@
+"""Amplitude and bias dynamics: does the oscillation settle, or does it burst (squegging)?
+
+The averaged (envelope) model has two parts, both batched over designs.
+
+*Fast part, the tank amplitude.*  ``a`` is the amplitude of the drive across
+the base and the bypassed emitter node (B to X, or B to E without RE1).  Its
+logarithm grows at the real part ``sigma`` of the oscillation mode's natural
+frequency, d ln a / dt = sigma(r, g), where the network is the small-signal
+one with the transistor's current-borne parts (gm, g_pi, C_diff) scaled by the
+describing-function ratio ``r`` and the base-collector junction, when the
+swing forward-biases it, added as a conductance ``g`` with its reverse
+transport.  ``sigma`` is tabulated once per design on a grid of (r, g) from
+the eigenvalues and interpolated.
+
+*Slow part, the bias network.*  The DC network (inductors shorted, every
+capacitor kept) carries the transistor's *average* terminal currents, which
+depend on the amplitude: the base-emitter junction (with any unbypassed RE1 in
+series) and the base-collector junction rectify the swing and pump the bypass
+and coupling capacitors.  When that pumping is slow against the envelope, the
+amplitude overshoots, starves the bias and collapses, and the cycle repeats:
+bursts.  When it is fast enough, the two settle together.
+
+The two are integrated together with ``scipy.integrate.solve_ivp`` (a stiff
+method; all designs of a batch as one block-diagonal system, each in its own
+time scale), and the envelope is classified with the same rules used on
+ngspice's waveforms (:mod:`picker.circuit.envelope`).
+
+References
+----------
+Describing function of the junction and the squegging mechanism: K. K. Clarke
+and D. T. Hess, "Communication Circuits: Analysis and Design" (1971), ch. 6-7.
+Transistor equations: the Ebers-Moll transport model as in the SPICE
+Gummel-Poon model with no high-level injection (BR = 1, as in our model card).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import sparse, special
+from scipy.integrate import solve_ivp
+
+from picker.circuit import envelope, mna
+from picker.circuit.bias import DcPoint
+from picker.circuit.design import DesignBatch
+from picker.circuit.device import NpnModel, is_at, thermal_voltage
+from picker.circuit.topology import GROUND_NODES, merged_node
+
+#: Grid of the transconductance ratio r = Gm / gm_quiescent for the sigma table.
+R_GRID = np.array([0.0, 0.1, 0.2, 0.35, 0.5, 0.7, 1.0, 1.4, 2.0, 3.0, 5.0])
+#: Grid of the base-collector fundamental conductance over gm_quiescent.
+G_GRID = np.array([0.0, 1e-3, 3e-3, 1e-2, 3e-2, 0.1, 0.3, 1.0, 3.0, 10.0, 30.0, 100.0])
+#: Below this, the base-collector junction counts as off.
+G_MIN = 1e-7
+#: Drive amplitude at t = 0 (a kick of about this size), volt.
+A0_V = 1e-3
+#: Conductance tying each DC-floating node to ground, as the SPICE deck does, siemens.
+G_FLOAT_S = 1e-9
+#: Phase samples per cycle for a junction with series resistance.
+PHASES = 32
+#: Largest exponent allowed in the junction laws (keeps a wild trial step finite).
+EXP_CAP = 80.0
+#: Floor of ln(a) while the envelope collapses (about 2 nV).
+U_FLOOR = -20.0
+#: Largest change of a log current in one Newton step.
+LOG_STEP = 3.0
+
+
+@dataclass(frozen=True)
+class Dynamics:
+    """Envelope-model results per design (arrays, SI units; NaN where not applicable).
+
+    ``amplitude_settles`` is 1.0 or 0.0 for designs that start and NaN for
+    those that do not (there is no amplitude to settle).
+    """
+
+    amplitude_settles: np.ndarray
+    growth_rate: np.ndarray  # largest real part of the linearised envelope model, 1/s
+    settle_time_s: np.ndarray
+    burst_period_s: np.ndarray
+    drive_v: np.ndarray  # running B-X drive amplitude of the averaged model, volt
+    tau_bias_s: np.ndarray
+    envelope_t_s: tuple = ()  # per integrated design: times, second
+    envelope_rel: tuple = ()  # per integrated design: drive amplitude / running amplitude
+
+    def settles(self) -> np.ndarray:
+        """Boolean: starts and settles."""
+        return np.nan_to_num(self.amplitude_settles, nan=0.0) > 0.5
+
+
+@dataclass(frozen=True)
+class SlowNetwork:
+    """The bias network as ``C dv/dt = b - G v + injections`` (n, M, M)."""
+
+    g: np.ndarray
+    c: np.ndarray
+    b: np.ndarray
+    nodes: tuple[str, ...]
+    ib: int
+    ic: int
+    ij: int  # the bypassed emitter node (X, or E without RE1)
+
+
+def _groups(batch: DesignBatch) -> dict[str, str]:
+    """DC node of every circuit node: inductors short, absent optionals merge."""
+    topo, present = batch.topology, batch.present
+    parent: dict[str, str] = {}
+
+    def find(x: str) -> str:
+        x = merged_node(topo, present, x)
+        while parent.get(x, x) != x:
+            x = parent[x]
+        return x
+
+    def union(a: str, b: str) -> None:
+        ra, rb = find(a), find(b)
+        if ra == rb:
+            return
+        if rb in GROUND_NODES:  # ground and supply stay the representatives
+            ra, rb = rb, ra
+        parent[rb] = ra
+
+    for p in topo.by_kind("inductor"):
+        if p.ref in present:
+            union(p.a, p.b)
+    nodes = {n for p in topo.positions if p.kind in ("resistor", "capacitor", "inductor")
+             for n in (p.a, p.b)} | {"B", "C", "E"}
+    return {n: find(n) for n in nodes}
+
+
+def slow_network(batch: DesignBatch) -> SlowNetwork:
+    """Assemble the DC network with its capacitors (the slow part of the model)."""
+    topo, present, n = batch.topology, batch.present, batch.n
+    group = _groups(batch)
+    has_re1 = any(p.role == "degeneration" and p.ref in present for p in topo.positions)
+    junction = group["X"] if has_re1 else group["E"]
+    names = sorted({g for g in group.values() if g not in GROUND_NODES} - ({group["E"]} if has_re1 else set()))
+    index = {g: k for k, g in enumerate(names)}
+    m = len(names)
+    g = np.zeros((n, m, m))
+    c = np.zeros((n, m, m))
+    b = np.zeros((n, m))
+
+    def at(node: str) -> int:
+        k = group[node]
+        return index.get(k, -1)
+
+    def supply(node: str):
+        return group[node] == "VCC"
+
+    for p in topo.positions:
+        if p.ref not in present or p.kind not in ("resistor", "capacitor"):
+            continue
+        if p.role == "degeneration":
+            continue  # RE1 is inside the junction's describing function
+        val = batch.values[p.ref]
+        i, j = at(p.a), at(p.b)
+        mat = g if p.kind == "resistor" else c
+        y = 1.0 / val if p.kind == "resistor" else val
+        mna._stamp(mat, i, j, y)
+        if p.kind == "resistor":  # a resistor to the supply is a current source
+            if supply(p.a) and j >= 0:
+                b[:, j] += y * batch.vcc_v
+            if supply(p.b) and i >= 0:
+                b[:, i] += y * batch.vcc_v
+    for k in range(m):
+        g[:, k, k] += G_FLOAT_S
+    return SlowNetwork(g=g, c=c, b=b, nodes=tuple(names), ib=index[group["B"]],
+                       ic=index[group["C"]] if group["C"] in index else -1, ij=index[junction])
+
+
+def _log_i0_i1(x):
+    """log I0(x) - x and 2 I1(x) / I0(x) for x >= 0, without overflow."""
+    x = np.maximum(x, 1e-12)
+    i0 = special.i0e(x)
+    return np.log(i0), 2 * special.i1e(x) / i0
+
+
+@dataclass(frozen=True)
+class Junctions:
+    """Per-design constants of the averaged transistor."""
+
+    log_is: np.ndarray
+    vt: np.ndarray
+    bf: np.ndarray
+    re1: np.ndarray
+    ie_q: np.ndarray
+    gm_q: np.ndarray
+
+
+def junction_be(j: Junctions, a, vbe_dc):
+    """Base-emitter junction (with any RE1 in series) driven by vbe_dc + a cos(theta).
+
+    Returns (ln_f, r): the log of the average forward emitter current (A) and
+    r = intrinsic fundamental transconductance / gm at the quiescent point.
+    Closed form (Bessel functions) without RE1; with it the Wright omega
+    solution of the series circuit, sampled over the cycle.
+    """
+    vt = j.vt
+    li0, ratio = _log_i0_i1(a / vt)
+    ln_f = j.log_is + (vbe_dc + a) / vt + li0
+    ln_f1 = ln_f + np.log(ratio)
+    deg = j.re1 > 0
+    if np.any(deg):
+        theta = np.linspace(0, 2 * np.pi, PHASES, endpoint=False)
+        rr = np.maximum(j.re1[deg], 1e-6)[:, None]
+        z = (np.log(rr / vt[deg, None]) + j.log_is[deg, None]
+             + (vbe_dc[deg, None] + a[deg, None] * np.cos(theta)) / vt[deg, None])
+        i = (vt[deg, None] / rr) * np.real(special.wrightomega(np.minimum(z, 1e12)))
+        ln_f = ln_f.copy()
+        ln_f1 = ln_f1.copy()
+        ln_f[deg] = np.log(np.maximum(i.mean(axis=1), 1e-300))
+        ln_f1[deg] = np.log(np.maximum(2 * (i * np.cos(theta)).mean(axis=1), 1e-300))
+    f_1 = np.exp(np.minimum(ln_f1, EXP_CAP))
+    a_j = np.maximum(a - f_1 * j.re1, 1e-3 * a)  # fundamental across the junction itself
+    return ln_f, f_1 / a_j / (j.ie_q / vt)
+
+
+def junction_bc(j: Junctions, a_bc, vbc_dc):
+    """Base-collector junction driven by vbc_dc + a_bc cos(theta) (closed form).
+
+    Returns (ln_r, g): the log of its average forward current (A) and its
+    fundamental conductance over gm at the quiescent point.
+    """
+    li0, ratio = _log_i0_i1(a_bc / j.vt)
+    ln_r = j.log_is + (vbc_dc + a_bc) / j.vt + li0
+    g = np.exp(np.minimum(ln_r, EXP_CAP)) * ratio / np.maximum(a_bc, 1e-12) / j.gm_q
+    return ln_r, g
+
+
+def sigma_table(batch: DesignBatch, hy: mna.Hybrid, omega_ref: np.ndarray):
+    """sigma (1/s) and |v_BC / v_BX| of the oscillation mode on the (r, g) grid: (n, R, G) each."""
+    n = batch.n
+    nr, ng = R_GRID.size, G_GRID.size
+    sig = np.empty((n, nr, ng))
+    rho = np.empty((n, nr, ng))
+    for a_, r in enumerate(R_GRID):
+        h = mna.Hybrid(gm_s=hy.gm_s * r, gpi_s=hy.gpi_s * r, go_s=hy.go_s,
+                       cpi_f=hy.cpi_f - (1 - r) * batch_tf(batch) * hy.gm_s, cmu_f=hy.cmu_f)
+        mat = mna.assemble(batch, h)
+        ib, ic, ie = mat.index["B"], mat.index["C"], mat.index["E"]
+        ix = mat.index.get("X", ie)
+        base = mat.g + (hy.gm_s * r)[:, None, None] * mat.gm_pattern
+        rev = np.zeros(mat.gm_pattern.shape)  # reverse transport: g v_BC into C, out of E
+        rev[ic, ib] -= 1.0
+        rev[ic, ic] += 1.0
+        rev[ie, ib] += 1.0
+        rev[ie, ic] -= 1.0
+        diode = np.zeros(mat.gm_pattern.shape)
+        diode[ib, ib] += 1.0
+        diode[ic, ic] += 1.0
+        diode[ib, ic] -= 1.0
+        diode[ic, ib] -= 1.0
+        for b_, gg in enumerate(G_GRID):
+            gbc = (gg * hy.gm_s)[:, None, None]
+            lam, vec = np.linalg.eig(np.linalg.solve(mat.c, base + gbc * (diode + rev)))
+            s = -lam
+            k = _nearest_mode(s, omega_ref)
+            rows = np.arange(n)
+            sig[:, a_, b_] = s[rows, k].real
+            v = vec[rows, :, k]
+            with np.errstate(invalid="ignore", divide="ignore"):
+                rho[:, a_, b_] = np.abs((v[:, ib] - v[:, ic]) / (v[:, ib] - v[:, ix]))
+    return sig, np.nan_to_num(rho, nan=1.0, posinf=1e3)
+
+
+def batch_tf(batch: DesignBatch) -> np.ndarray:
+    from picker.circuit.engine import model_of
+
+    return model_of(batch).tf_s
+
+
+def _nearest_mode(s: np.ndarray, omega_ref: np.ndarray) -> np.ndarray:
+    ok = s.imag > 1e-9 * np.abs(s).max(axis=1, keepdims=True)
+    dist = np.where(ok, np.abs(np.log(np.abs(s.imag) + 1e-300) - np.log(omega_ref)[:, None]), np.inf)
+    return np.argmin(dist, axis=1)
+
+
+def _bilinear(table: np.ndarray, r: np.ndarray, g: np.ndarray) -> np.ndarray:
+    """Interpolate (n, R, G) tables at one (r, g) per design."""
+    r = np.clip(r, R_GRID[0], R_GRID[-1])
+    g = np.clip(g, G_GRID[0], G_GRID[-1])
+    i = np.clip(np.searchsorted(R_GRID, r) - 1, 0, R_GRID.size - 2)
+    k = np.clip(np.searchsorted(G_GRID, g) - 1, 0, G_GRID.size - 2)
+    tr = (r - R_GRID[i]) / (R_GRID[i + 1] - R_GRID[i])
+    tg = (g - G_GRID[k]) / (G_GRID[k + 1] - G_GRID[k])
+    rows = np.arange(table.shape[0])
+    t00, t10 = table[rows, i, k], table[rows, i + 1, k]
+    t01, t11 = table[rows, i, k + 1], table[rows, i + 1, k + 1]
+    return (1 - tr) * (1 - tg) * t00 + tr * (1 - tg) * t10 + (1 - tr) * tg * t01 + tr * tg * t11
+
+
+@dataclass(frozen=True)
+class Model:
+    """Everything the right-hand side needs, per design."""
+
+    net: SlowNetwork
+    j: Junctions
+    sig: np.ndarray
+    rho: np.ndarray
+    vcc_v: np.ndarray
+    tau_s: np.ndarray
+
+
+def _node_v(model: Model, v: np.ndarray, k: int, fixed: np.ndarray) -> np.ndarray:
+    return v[:, k] if k >= 0 else fixed
+
+
+def _device(mdl: Model, a, vbe, vbc, steps: int = 8):
+    """Averaged transistor at amplitude ``a`` with a self-consistent base-collector swing.
+
+    The B-C swing is rho * a, where the mode-shape ratio rho falls as the
+    forward-biased B-C junction loads the circuit (conductance ratio g); g
+    itself grows with the swing.  The fixed point g = G(rho(g) a) is found by
+    bisection on log g (G - g is decreasing in g).
+
+    Returns (ln_f, r, ln_r, g); see :func:`junction_be` and :func:`junction_bc`.
+    """
+    j = mdl.j
+    ln_f, r = junction_be(j, a, vbe)
+    g_off = np.full_like(a, G_MIN)
+    ln_r, g = junction_bc(j, _bilinear(mdl.rho, r, g_off) * a, vbc)
+    on = np.flatnonzero(g > G_MIN)  # rows whose B-C junction conducts: solve the fixed point
+    if on.size and steps:
+        sub = _take_model(mdl, on)
+        lg = _bc_fixed_point(sub, r[on], a[on], vbc[on], steps)
+        ln_r, g = ln_r.copy(), g.copy()
+        ln_r[on], g[on] = junction_bc(sub.j, _bilinear(sub.rho, r[on], np.exp(lg)) * a[on], vbc[on])
+    return ln_f, r, ln_r, g
+
+
+#: Log-spaced trial values of g scanned for the first root of the B-C fixed point.
+G_SCAN = np.geomspace(1e-7, 100.0, 48)
+
+
+def _bc_fixed_point(mdl: Model, r, a, vbc, steps: int) -> np.ndarray:
+    """log g with g = G(rho(r, g) a), the smallest root (the one a growing swing meets first).
+
+    The root is bracketed on the ``G_SCAN`` grid (rho need not be monotone in
+    g, so there may be more than one), then refined by bisection and a Newton
+    polish, so that the result is a smooth function of its inputs.
+    """
+    j = mdl.j
+    n = a.shape[0]
+
+    k = G_SCAN.size
+    lg_grid = np.log(G_SCAN)
+    rep = lambda x: np.repeat(x, k)  # noqa: E731
+    tab = np.repeat(mdl.rho, k, axis=0)
+    jj = Junctions(**{f: np.repeat(getattr(j, f), k) for f in Junctions.__dataclass_fields__})
+    scan = (np.log(np.maximum(junction_bc(jj, _bilinear(tab, rep(r), np.tile(G_SCAN, n)) * rep(a), rep(vbc))[1],
+                              1e-300)) - np.tile(lg_grid, n)).reshape(n, k)
+    down = (scan[:, :-1] > 0) & (scan[:, 1:] <= 0)
+    first = np.where(down.any(axis=1), np.argmax(down, axis=1), k - 2)
+    lo, hi = lg_grid[first], lg_grid[first + 1]
+
+    def f(lg):
+        return np.log(np.maximum(junction_bc(j, _bilinear(mdl.rho, r, np.exp(lg)) * a, vbc)[1], 1e-300)) - lg
+
+    for _ in range(steps):
+        mid = 0.5 * (lo + hi)
+        up = f(mid) > 0
+        lo, hi = np.where(up, mid, lo), np.where(up, hi, mid)
+    lg = 0.5 * (lo + hi)
+    for _ in range(3):
+        f0 = f(lg)
+        d = (f(lg + 1e-6) - f0) / 1e-6
+        lg = np.clip(lg - f0 / np.where(d < -1e-12, d, -1e-12), lo - 1e-3, hi + 1e-3)
+    return lg
+
+
+def _rates(model: Model, u: np.ndarray, v: np.ndarray):
+    """d ln a / dt (1/s) and the node injections (A) for states (n,), (n, M)."""
+    net = model.net
+    vb = v[:, net.ib]
+    vc = _node_v(model, v, net.ic, model.vcc_v)
+    ln_f, r, ln_r, g = _device(model, np.exp(u), vb - v[:, net.ij], vb - vc)
+    sigma = _bilinear(model.sig, r, g)
+    return sigma, _injections(model, np.exp(np.minimum(ln_f, EXP_CAP)), np.exp(np.minimum(ln_r, EXP_CAP)))
+
+
+def _injections(model: Model, f_avg, r_avg):
+    """Currents the transistor injects into the slow nodes (n, M), ampere."""
+    net, j = model.net, model.j
+    inj = np.zeros((f_avg.shape[0], net.g.shape[1]))
+    ib_f = f_avg / (j.bf + 1)
+    inj[:, net.ib] -= ib_f + r_avg
+    if net.ic >= 0:
+        inj[:, net.ic] -= f_avg - ib_f - 2 * r_avg
+    inj[:, net.ij] += f_avg - r_avg
+    return inj
+
+
+def bias_time_constant(net: SlowNetwork) -> np.ndarray:
+    """Longest time constant of the bias network (floating-node ties left out), second."""
+    m = net.c.shape[1]
+    g = net.g - G_FLOAT_S * np.eye(m)
+    lam = np.linalg.eigvals(np.linalg.solve(net.c + 1e-18 * np.eye(m), g)).real
+    big = np.abs(lam).max(axis=1, keepdims=True)
+    slow = np.where(lam > 1e-9 * big, lam, np.inf)
+    return 1.0 / np.min(slow, axis=1)
+
+
+def _state_rates(mdl: Model, y: np.ndarray) -> np.ndarray:
+    """(n, K) time derivatives of the states (ln a, node voltages)."""
+    u, v = y[:, 0], y[:, 1:]
+    sigma, inj = _rates(mdl, np.clip(u, -60.0, 5.0), v)
+    dv = np.linalg.solve(mdl.net.c, (mdl.net.b - np.einsum("nij,nj->ni", mdl.net.g, v) + inj)[..., None])[..., 0]
+    return np.concatenate([sigma[:, None], dv], axis=1)
+
+
+def _fd_jacobian(f, y: np.ndarray, f0: np.ndarray, h: np.ndarray) -> np.ndarray:
+    n, k = y.shape
+    jac = np.empty((n, f0.shape[1], k))
+    for i in range(k):
+        yp = y.copy()
+        yp[:, i] += h[i]
+        jac[:, :, i] = (f(yp) - f0) / h[i]
+    return jac
+
+
+def balance(mdl: Model, u: np.ndarray, iterations: int = 30, start=None, with_state=False):
+    """Node voltages where the bias network carries the average currents at amplitude e^u.
+
+    The network is linear, so the node voltages are an affine function of the
+    two device currents (forward emitter current, base-collector diode
+    current); Newton runs on their logarithms, where the junction laws are
+    nearly linear, with steps limited to LOG_STEP.
+    """
+    net = mdl.net
+    n = u.shape[0]
+    a = np.exp(u)
+    one = np.ones(n)
+    jf = _injections(mdl, one, 0 * one)
+    jr = _injections(mdl, 0 * one, one)
+    solve = lambda rhs: np.linalg.solve(net.g, rhs[..., None])[..., 0]  # noqa: E731
+    v0, zf, zr = solve(net.b), solve(jf), solve(jr)
+
+    def volts(lf, lr):
+        return v0 + zf * np.exp(lf)[:, None] + zr * np.exp(lr)[:, None]
+
+    def resid(lf, lr):
+        v = volts(lf, lr)
+        vb = v[:, net.ib]
+        vc = _node_v(mdl, v, net.ic, mdl.vcc_v)
+        ln_f, _, ln_r, _ = _device(mdl, a, vb - v[:, net.ij], vb - vc)
+        return ln_f - lf, ln_r - lr
+
+    lf, lr = (np.log(mdl.j.ie_q), np.full(n, -80.0)) if start is None else start
+    h = 1e-6
+    for _ in range(iterations):
+        f1, f2 = resid(lf, lr)
+        a11, a21 = (np.array(resid(lf + h, lr)) - (f1, f2)) / h
+        a12, a22 = (np.array(resid(lf, lr + h)) - (f1, f2)) / h
+        det = a11 * a22 - a12 * a21
+        det = np.where(np.abs(det) < 1e-30, 1e-30, det)
+        d1 = (-f1 * a22 + f2 * a12) / det
+        d2 = (-a11 * f2 + a21 * f1) / det
+        lf = lf + np.clip(d1, -LOG_STEP, LOG_STEP)
+        lr = np.clip(lr + np.clip(d2, -LOG_STEP, LOG_STEP), -700.0, 5.0)
+        if np.all(np.abs(d1) < 1e-7) and np.all((np.abs(d2) < 1e-7) | (lr < -600)):
+            break
+    return (volts(lf, lr), (lf, lr)) if with_state else volts(lf, lr)
+
+
+def rest(mdl: Model) -> np.ndarray:
+    """Node voltages at rest (amplitude A0_V, practically the DC point)."""
+    return balance(mdl, np.full(mdl.vcc_v.shape[0], np.log(A0_V)))
+
+
+#: Amplitudes (log-spaced from the kick to twice the supply) scanned for the running point.
+U_SCAN = 20
+
+
+def equilibrium(mdl: Model, steps: int = 14):
+    """Running state (ln a, node voltages): sigma = 0 with the bias balanced at that amplitude.
+
+    sigma is scanned along the balanced bias curve (amplitude rising from the
+    kick, the balance warm-started from the previous amplitude).  There may be
+    several roots (a forward-biased base-collector junction pumps the bias to
+    a second branch); the running point is the largest amplitude where sigma
+    falls through zero, the one a start-up with lagging bias reaches.  It is
+    refined by bisection.  Returns (y, starts); ``starts`` is False where
+    sigma < 0 already at rest.
+    """
+    n = mdl.vcc_v.shape[0]
+    us = np.linspace(np.log(A0_V), np.log(np.maximum(2 * mdl.vcc_v, 1.0)), U_SCAN, axis=1)
+    sig = np.empty((n, U_SCAN))
+    states = []
+    state = None
+    for k in range(U_SCAN):
+        v, state = balance(mdl, us[:, k], start=state, with_state=True)
+        sig[:, k] = _rates(mdl, us[:, k], v)[0]
+        states.append(state)
+    down = (sig[:, :-1] > 0) & (sig[:, 1:] <= 0)
+    last = np.where(down.any(axis=1), U_SCAN - 2 - np.argmax(down[:, ::-1], axis=1), 0)
+    rows = np.arange(n)
+    lo, hi = us[rows, last], us[rows, last + 1]
+    state = (np.array([states[k][0][i] for i, k in enumerate(last)]),
+             np.array([states[k][1][i] for i, k in enumerate(last)]))
+    for _ in range(steps):
+        mid = 0.5 * (lo + hi)
+        v, state = balance(mdl, mid, start=state, with_state=True)
+        up = _rates(mdl, mid, v)[0] > 0
+        lo = np.where(up, mid, lo)
+        hi = np.where(up, hi, mid)
+    u = 0.5 * (lo + hi)
+    return np.concatenate([u[:, None], balance(mdl, u, start=state)], axis=1), sig[:, 0] > 0
+
+
+def stability(mdl: Model, y_eq: np.ndarray) -> np.ndarray:
+    """Eigenvalues (1/s) of the linearised envelope model at the running state, (n, K)."""
+    m = mdl.net.c.shape[1]
+    h = np.array([1e-4] + [1e-5] * m)
+    f = lambda y: _state_rates(mdl, y)  # noqa: E731
+    return np.linalg.eigvals(_fd_jacobian(f, y_eq, f(y_eq), h))
+
+
+def build_model(batch: DesignBatch, model: NpnModel, dc: DcPoint, hy: mna.Hybrid,
+                omega_ref: np.ndarray) -> Model:
+    from picker.circuit.engine import _degeneration
+
+    net = slow_network(batch)
+    vt = thermal_voltage(batch.temp_c) + np.zeros(batch.n)
+    j = Junctions(log_is=np.log(is_at(model, batch.temp_c)) + np.zeros(batch.n), vt=vt,
+                  bf=np.broadcast_to(model.bf, (batch.n,)).astype(float), re1=_degeneration(batch),
+                  ie_q=np.maximum(dc.ie_a, 1e-12), gm_q=np.maximum(hy.gm_s, 1e-12))
+    sig, rho = sigma_table(batch, hy, omega_ref)
+    tau = bias_time_constant(net)
+    return Model(net=net, j=j, sig=sig, rho=rho, vcc_v=batch.vcc_v + np.zeros(batch.n), tau_s=tau)
+
+
+def _with_floor(mdl: Model, y: np.ndarray, d: np.ndarray) -> np.ndarray:
+    """Add a noise-level source to d ln a / dt, so a collapsed envelope rests near U_FLOOR."""
+    seed = np.abs(mdl.sig[:, 0, 0])  # the passive decay rate, 1/s
+    d[:, 0] += seed * np.exp(np.minimum(U_FLOOR - y[:, 0], 50.0))
+    return d
+
+
+def simulate(mdl: Model, y_start: np.ndarray, t_end_s: np.ndarray, samples: int = 2000):
+    """Integrate the envelope model from ``y_start`` (n, K); each design in its own time.
+
+    Design k runs over [0, t_end_s[k]] mapped onto a common s in [0, 1], so a
+    batch of designs with different time scales shares one stiff (BDF) solve
+    with a block-diagonal Jacobian.  The amplitude's logarithm is floored at
+    ``U_FLOOR`` by a noise-level source (a collapsed oscillation keeps its seed).
+
+    Returns (t, a, sol): t (n, samples) seconds, a (n, samples) volt.
+    """
+    n, k = y_start.shape
+    t_end = np.asarray(t_end_s, dtype=float)
+    h = np.array([1e-5] + [1e-6] * (k - 1))
+    rows = (np.arange(n)[:, None, None] * k + np.arange(k)[None, :, None]) + 0 * np.arange(k)[None, None, :]
+    cols = (np.arange(n)[:, None, None] * k + np.arange(k)[None, None, :]) + 0 * np.arange(k)[None, :, None]
+
+    def f(y):
+        return _with_floor(mdl, y, _state_rates(mdl, y)) * t_end[:, None]
+
+    def rhs(_s, yy):
+        return f(yy.reshape(n, k)).ravel()
+
+    def jac(_s, yy):
+        y = yy.reshape(n, k)
+        blocks = _fd_jacobian(f, y, f(y), h)
+        return sparse.csc_matrix((blocks.ravel(), (rows.ravel(), cols.ravel())), shape=(n * k, n * k))
+
+    s_eval = np.linspace(0.0, 1.0, samples)
+    sol = solve_ivp(rhs, (0.0, 1.0), y_start.ravel(), method="BDF", t_eval=s_eval, jac=jac,
+                    rtol=1e-4, atol=1e-6)
+    y = sol.y.reshape(n, k, -1)
+    return t_end[:, None] * sol.t[None, :], np.exp(y[:, 0, :]), sol
+
+
+def simulate_one(mdl: Model, row: int, y_start: np.ndarray, t_end_s: float, samples: int = 2000,
+                 stop_below: float | None = None):
+    """Integrate one design of the model (LSODA, dense Jacobian); for bursting designs.
+
+    A bursting envelope switches between fast collapses and slow recoveries,
+    which a shared-step batch cannot follow efficiently; one design at a time
+    it costs a few thousand evaluations of the averaged model.
+    """
+    one = _take_model(mdl, np.array([row]))
+
+    def rhs(_t, y):
+        yy = y[None, :]
+        return _with_floor(one, yy, _state_rates(one, yy))[0]
+
+    events = None
+    if stop_below is not None:  # stop at the BURSTS_SEEN-th collapse below this amplitude
+        def collapse(_t, y):
+            return y[0] - np.log(stop_below)
+        collapse.direction = -1
+        collapse.terminal = BURSTS_SEEN
+        events = [collapse]
+    sol = solve_ivp(rhs, (0.0, t_end_s), y_start, method="LSODA", rtol=1e-3, atol=1e-4,
+                    max_step=t_end_s / 400, events=events)
+    t = np.linspace(0.0, sol.t[-1], samples)
+    return t, np.exp(np.interp(t, sol.t, sol.y[0])), sol
+
+
+def _take_model(mdl: Model, rows: np.ndarray) -> Model:
+    net = mdl.net
+    sub_net = SlowNetwork(g=net.g[rows], c=net.c[rows], b=net.b[rows], nodes=net.nodes,
+                          ib=net.ib, ic=net.ic, ij=net.ij)
+    j = Junctions(**{k: getattr(mdl.j, k)[rows] for k in Junctions.__dataclass_fields__})
+    return Model(net=sub_net, j=j, sig=mdl.sig[rows], rho=mdl.rho[rows], vcc_v=mdl.vcc_v[rows],
+                 tau_s=mdl.tau_s[rows])
+
+
+#: Integration horizon after the start-up, in bias time constants: settling and bursting designs.
+SETTLE_HORIZON = 10.0
+BURST_HORIZON = 6.0
+#: A bursting design's integration stops after this many collapses.
+BURSTS_SEEN = 3
+#: Envelope growth rate (relative to the passive decay rate) above which the running point is unstable.
+UNSTABLE_REL = 1e-3
+
+
+def predict(batch: DesignBatch, res, integrate_rows=()) -> Dynamics:
+    """Envelope dynamics of every design of a batch, given its engine result ``res``.
+
+    Without ``integrate``: the running point of the averaged model and the
+    eigenvalues of its linearisation decide, for every design that starts,
+    whether the amplitude settles (all real parts negative) or not (bursts,
+    or a growing envelope modulation).  The rows in ``integrate_rows`` are
+    also integrated from a 1 mV start (``A0_V``), which gives the settling
+    time and the burst period and overrides the linear verdict where they
+    disagree (a start-up that overshoots into bursts).
+    """
+    from picker.circuit.engine import model_of
+
+    n = batch.n
+    out = {k: np.full(n, np.nan) for k in ("amplitude_settles", "growth_rate", "settle_time_s",
+                                           "burst_period_s", "drive_v", "tau_bias_s")}
+    env_t, env_a = [], []
+    run = np.flatnonzero(np.asarray(res.starts))
+    if run.size == 0:
+        return Dynamics(**out)
+    sub = batch.take(run)
+    hy = mna.Hybrid(*(np.asarray(getattr(res.hybrid, k))[run] for k in mna.Hybrid.__dataclass_fields__))
+    dc = DcPoint(**{k: np.asarray(getattr(res.dc, k))[run] for k in DcPoint.__dataclass_fields__})
+    mdl = build_model(sub, model_of(sub), dc, hy, 2 * np.pi * np.asarray(res.freq_loop_hz)[run])
+    y_eq, grows = equilibrium(mdl)
+    lam = stability(mdl, y_eq)
+    rate = lam.real.max(axis=1)
+    stable = grows & (rate <= UNSTABLE_REL * np.abs(mdl.sig[:, 0, 0]))
+    settles = stable.astype(float)
+    settle_t = np.full(run.size, np.nan)
+    period = np.full(run.size, np.nan)
+    pos = {int(r): k for k, r in enumerate(run)}
+    todo = [pos[int(r)] for r in integrate_rows if int(r) in pos]
+    if todo:
+        y0 = np.concatenate([np.full((run.size, 1), np.log(A0_V)), rest(mdl)], axis=1)
+        sig0 = np.maximum(np.abs(mdl.sig[:, R_GRID.searchsorted(1.0), 0]), 1e-9)
+        t_up = np.log(np.exp(y_eq[:, 0]) / A0_V) / sig0
+        f_hz = np.asarray(res.freq_hz)[run]
+        for k in todo:  # designs integrate one by one: each needs its own steps
+            horizon = SETTLE_HORIZON if stable[k] else BURST_HORIZON
+            t_end = float(t_up[k] + horizon * mdl.tau_s[k])
+            low = None if stable[k] else envelope.BURST_LOW * 0.5 * float(np.exp(y_eq[k, 0]))
+            t, a, _ = simulate_one(mdl, k, y0[k], t_end, stop_below=low)
+            cls = envelope.classify(t, a, 0.0, 1.0 / f_hz[k])
+            settles[k] = float(cls.settle_time_s is not None and not cls.bursts)
+            settle_t[k] = cls.settle_time_s if cls.settle_time_s is not None else np.nan
+            period[k] = cls.burst_period_s if cls.burst_period_s is not None else np.nan
+            env_t.append(t)
+            env_a.append(a / np.exp(y_eq[k, 0]))
+    out["amplitude_settles"][run] = np.where(grows, settles, np.nan)
+    out["growth_rate"][run] = rate
+    out["settle_time_s"][run] = settle_t
+    out["burst_period_s"][run] = period
+    out["drive_v"][run] = np.exp(y_eq[:, 0])
+    out["tau_bias_s"][run] = mdl.tau_s
+    return Dynamics(**out, envelope_t_s=tuple(env_t), envelope_rel=tuple(env_a))
