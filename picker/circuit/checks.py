@@ -68,6 +68,15 @@ def run_checks(design, ev) -> list[Warning_]:
     elif ev.margin_worst < PRACTICE_MARGIN:
         add("thin-margin", f"worst-case margin {ev.margin_worst:.2f}; practice is 2-3 so that part "
                            "spread and ageing do not stop it")
+    if ev.amplitude_settles is False:
+        what = (f"bursts about every {_v(ev.burst_period_s, 's')}" if ev.burst_period_s
+                else "does not settle (the envelope grows into bursts or a slow wobble)")
+        add("bursts", f"the amplitude {what}: the emitter bypass and coupling capacitors are pumped "
+                      "by the rectified junction current faster than they recover; add unbypassed "
+                      "emitter resistance (RE1) or use a smaller bypass capacitor (see the remedy)")
+    elif ev.amplitude_settles and not ev.dynamics.get("settles_all_corners", True):
+        add("corner-bursts", "the amplitude settles at nominal hFE and temperature but bursts at some "
+                             "corner; a little unbypassed emitter resistance (RE1) makes it robust")
     if ev.saturated:
         add("saturated", f"VCE is {_v(ev.bias['vce_v'], 'V')}: the transistor is saturated at DC; "
                          "raise R1 or RE, or lower RC")

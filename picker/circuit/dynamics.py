@@ -65,6 +65,10 @@ EXP_CAP = 80.0
 U_FLOOR = -20.0
 #: Largest change of a log current in one Newton step.
 LOG_STEP = 3.0
+#: The same for the log of the base-collector diode current (it spans hundreds when off).
+LOG_STEP_R = 40.0
+#: Residual (of the log currents) below which the bias balance counts as solved.
+BALANCE_TOL = 1e-6
 
 
 @dataclass(frozen=True)
@@ -447,21 +451,36 @@ def balance(mdl: Model, u: np.ndarray, iterations: int = 30, start=None, with_st
         ln_f, _, ln_r, _ = _device(mdl, a, vb - v[:, net.ij], vb - vc)
         return ln_f - lf, ln_r - lr
 
-    lf, lr = (np.log(mdl.j.ie_q), np.full(n, -80.0)) if start is None else start
+    lf, lr = (np.log(mdl.j.ie_q), np.full(n, -700.0)) if start is None else start
+    lr = np.clip(lr + resid(lf, lr)[1], -700.0, 5.0)  # the diode current the present voltages give
+
+    def norm(f1, f2, lr_):
+        return np.maximum(np.abs(f1), np.where(lr_ < -600, 0.0, np.abs(f2)))
+
     h = 1e-6
+    f1, f2 = resid(lf, lr)
     for _ in range(iterations):
-        f1, f2 = resid(lf, lr)
         a11, a21 = (np.array(resid(lf + h, lr)) - (f1, f2)) / h
         a12, a22 = (np.array(resid(lf, lr + h)) - (f1, f2)) / h
         det = a11 * a22 - a12 * a21
         det = np.where(np.abs(det) < 1e-30, 1e-30, det)
-        d1 = (-f1 * a22 + f2 * a12) / det
-        d2 = (-a11 * f2 + a21 * f1) / det
-        lf = lf + np.clip(d1, -LOG_STEP, LOG_STEP)
-        lr = np.clip(lr + np.clip(d2, -LOG_STEP, LOG_STEP), -700.0, 5.0)
-        if np.all(np.abs(d1) < 1e-7) and np.all((np.abs(d2) < 1e-7) | (lr < -600)):
+        d1 = np.clip((-f1 * a22 + f2 * a12) / det, -LOG_STEP, LOG_STEP)
+        d2 = np.clip((-a11 * f2 + a21 * f1) / det, -LOG_STEP_R, LOG_STEP_R)
+        old = norm(f1, f2, lr)
+        step = np.ones(n)
+        for _ in range(8):  # backtracking: halve the step where the residual grew
+            nf, nr = lf + step * d1, np.clip(lr + step * d2, -700.0, 5.0)
+            g1, g2 = resid(nf, nr)
+            worse = ~(norm(g1, g2, nr) <= old)
+            if not worse.any():
+                break
+            step = np.where(worse, step / 2, step)
+        lf, lr, f1, f2 = nf, nr, g1, g2
+        if np.all(norm(f1, f2, lr) < 1e-9):
             break
-    return (volts(lf, lr), (lf, lr)) if with_state else volts(lf, lr)
+    ok = norm(f1, f2, lr) < BALANCE_TOL
+    v = volts(lf, lr)
+    return (v, (lf, lr), ok) if with_state else v
 
 
 def rest(mdl: Model) -> np.ndarray:
@@ -481,32 +500,46 @@ def equilibrium(mdl: Model, steps: int = 14):
     several roots (a forward-biased base-collector junction pumps the bias to
     a second branch); the running point is the largest amplitude where sigma
     falls through zero, the one a start-up with lagging bias reaches.  It is
-    refined by bisection.  Returns (y, starts); ``starts`` is False where
-    sigma < 0 already at rest.
+    refined by bisection.  Returns (y, starts, found); ``starts`` is False
+    where sigma < 0 already at rest, ``found`` is False where no running point was
+    found (the verdict is then "does not settle", the cautious side).
     """
     n = mdl.vcc_v.shape[0]
     us = np.linspace(np.log(A0_V), np.log(np.maximum(2 * mdl.vcc_v, 1.0)), U_SCAN, axis=1)
     sig = np.empty((n, U_SCAN))
     states = []
     state = None
+    good = np.zeros((n, U_SCAN), dtype=bool)
     for k in range(U_SCAN):
-        v, state = balance(mdl, us[:, k], start=state, with_state=True)
+        v, state, good[:, k] = balance(mdl, us[:, k], start=state, with_state=True)
+        bad = np.flatnonzero(~good[:, k])
+        if bad.size:  # a warm start can land on a wrong branch: start those rows afresh
+            v2, st2, ok2 = balance(_take_model(mdl, bad), us[bad, k], with_state=True)
+            fix = bad[ok2]
+            v[fix] = v2[ok2]
+            state = (state[0].copy(), state[1].copy())
+            state[0][fix], state[1][fix] = st2[0][ok2], st2[1][ok2]
+            good[fix, k] = True
         sig[:, k] = _rates(mdl, us[:, k], v)[0]
         states.append(state)
-    down = (sig[:, :-1] > 0) & (sig[:, 1:] <= 0)
-    last = np.where(down.any(axis=1), U_SCAN - 2 - np.argmax(down[:, ::-1], axis=1), 0)
+    # roots between amplitudes whose bias balance was solved; failing that, any root
+    cross = (sig[:, :-1] > 0) & (sig[:, 1:] <= 0)
+    down = cross & good[:, :-1] & good[:, 1:]
+    down = np.where(down.any(axis=1, keepdims=True), down, cross)
+    found = down.any(axis=1)
+    last = np.where(found, U_SCAN - 2 - np.argmax(down[:, ::-1], axis=1), 0)
     rows = np.arange(n)
     lo, hi = us[rows, last], us[rows, last + 1]
     state = (np.array([states[k][0][i] for i, k in enumerate(last)]),
              np.array([states[k][1][i] for i, k in enumerate(last)]))
     for _ in range(steps):
         mid = 0.5 * (lo + hi)
-        v, state = balance(mdl, mid, start=state, with_state=True)
+        v, state, _ = balance(mdl, mid, start=state, with_state=True)
         up = _rates(mdl, mid, v)[0] > 0
         lo = np.where(up, mid, lo)
         hi = np.where(up, hi, mid)
     u = 0.5 * (lo + hi)
-    return np.concatenate([u[:, None], balance(mdl, u, start=state)], axis=1), sig[:, 0] > 0
+    return np.concatenate([u[:, None], balance(mdl, u, start=state)], axis=1), sig[:, 0] > 0, found
 
 
 def stability(mdl: Model, y_eq: np.ndarray) -> np.ndarray:
@@ -641,10 +674,10 @@ def predict(batch: DesignBatch, res, integrate_rows=()) -> Dynamics:
     hy = mna.Hybrid(*(np.asarray(getattr(res.hybrid, k))[run] for k in mna.Hybrid.__dataclass_fields__))
     dc = DcPoint(**{k: np.asarray(getattr(res.dc, k))[run] for k in DcPoint.__dataclass_fields__})
     mdl = build_model(sub, model_of(sub), dc, hy, 2 * np.pi * np.asarray(res.freq_loop_hz)[run])
-    y_eq, grows = equilibrium(mdl)
+    y_eq, grows, found = equilibrium(mdl)
     lam = stability(mdl, y_eq)
     rate = lam.real.max(axis=1)
-    stable = grows & (rate <= UNSTABLE_REL * np.abs(mdl.sig[:, 0, 0]))
+    stable = grows & found & (rate <= UNSTABLE_REL * np.abs(mdl.sig[:, 0, 0]))
     settles = stable.astype(float)
     settle_t = np.full(run.size, np.nan)
     period = np.full(run.size, np.nan)

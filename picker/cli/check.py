@@ -25,20 +25,24 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Annotated, Optional
 
+import numpy as np
 import typer
 from sqlalchemy import select
 
 from picker import units
 from picker.circuit.design import STYLE_STRAY_F, Design, PartInfo, complete_values, style_stray_f
 from picker.circuit.device import NpnProfile
+from picker.circuit.checks import run_checks
 from picker.circuit.evaluate import check_design
+from picker.circuit.remedy import find_remedies
 from picker.circuit.topology import Topology, get_topology, topology_names
 from picker.cli.env import Env, get_env
 from picker.cli.output import print_json, print_message
+from picker.eseries import preferred_values
 from picker.errors import PickerError
 from picker.store import get_part
 from picker.store.engine import display_url
@@ -295,6 +299,11 @@ def check(
         help="Temperature in °C, or a range whose ends are corners (nominal 25 °C if inside, else the midpoint).")] = "25",  # fmt: skip
     plot: Annotated[Optional[Path], typer.Option("--plot", metavar="FILE.png", help="Write a Bode plot of the loop gain.")] = None,
     spice: Annotated[Optional[Path], typer.Option("--spice", metavar="FILE.cir", help="Write an ngspice deck (transient).")] = None,
+    min_margin: Annotated[str, typer.Option("--min-margin", metavar="M",
+        help="Worst-case margin a remedy for bursting must keep (default 2).")] = "2",  # fmt: skip
+    verify: Annotated[bool, typer.Option("--verify", help="Also run the SPICE deck in ngspice and print what it does beside the prediction.")] = False,
+    verify_plot: Annotated[Optional[Path], typer.Option("--verify-plot", metavar="FILE.png",
+        help="With --verify: write the simulated tank waveform and its envelope.")] = None,  # fmt: skip
     as_json: Annotated[bool, typer.Option("--json", help="JSON on stdout, SI base units.")] = False,
 ) -> None:
     """Check one oscillator design: DC point, start-up margin, frequency, amplitude, ratings."""
@@ -311,6 +320,10 @@ def check(
     nominal_c, temps = parse_temps(temp)
     plot = _output_path("--plot", plot, ".png")
     spice = _output_path("--spice", spice, None)
+    verify_plot = _output_path("--verify-plot", verify_plot, ".png")
+    if verify_plot is not None and not verify:
+        raise PickerError("--verify-plot: needs --verify (the plot shows the simulated waveform)")
+    margin_spec = _min_margin(min_margin)
 
     stored, profile, npn_source, npn_id = resolve_store(env, parts, npn)
     given = {pa.ref: pa.value for pa in parts if pa.value is not None}
@@ -319,8 +332,22 @@ def check(
     design = Design(topology=topo.name, values=values, npn=profile, vcc_v=vcc, temp_c=nominal_c, style=style,
                     stray_f=stray_f, parts={ref: info for ref, (_, info) in stored.items()}, defaulted=defaulted)
     ev = check_design(design, temps)
+    if ev.amplitude_settles is False or not ev.dynamics.get("settles_all_corners", True):
+        ev = replace(ev, remedies=_remedies(env, design, margin_spec, temps))
+        ev = replace(ev, warnings=run_checks(design, ev))
+    verified = None
+    if verify:
+        from picker.sim.verify import require_ngspice
+        from picker.sim.verify import transient_length_s as transient_length
+        from picker.sim.verify import verify as run_verify
+
+        require_ngspice()
+        if not as_json:
+            print_message(env, f"ngspice: simulating {units.format_eng(transient_length(ev), 's')} of the transient ...")
+        verified = run_verify(design, ev)
 
     from picker.report import bode, check_report  # matplotlib loads only for check
+    from picker.report.waveform import write_waveform_png
 
     files = {}
     if spice is not None:
@@ -335,8 +362,17 @@ def check(
             raise PickerError(f"--plot: cannot write {plot} ({e.strerror or e})") from None
         files["plot"] = str(plot)
 
+    if verify_plot is not None:
+        try:
+            write_waveform_png(verified, design, ev, verify_plot)
+        except OSError as e:
+            raise PickerError(f"--verify-plot: cannot write {verify_plot} ({e.strerror or e})") from None
+        files["verify_plot"] = str(verify_plot)
+
     if as_json:
         data = ev.as_json()
+        if verified is not None:
+            data["verified"] = verified.as_json()
         data.update(style=style, stray_f=design.node_stray_f, supply_v=vcc, temps_c=list(temps),
                     npn=profile.name, npn_part_id=npn_id, npn_source=npn_source,
                     parts={ref: {"part_id": i.part_id, "bin": i.bin} for ref, i in design.parts.items()},
@@ -344,8 +380,10 @@ def check(
         print_json(env, data)
         return
     split = bode.loop_split(design, ev.freq_loop_hz)
-    env.out.print(check_report.check_report(design, ev, npn_source=npn_source, split=split))
-    for what, path in (("SPICE deck", files.get("spice")), ("Bode plot", files.get("plot"))):
+    env.out.print(check_report.check_report(design, ev, npn_source=npn_source, split=split,
+                                            verified=None if verified is None else verified.as_json()))
+    for what, path in (("SPICE deck", files.get("spice")), ("Bode plot", files.get("plot")),
+                       ("waveform plot", files.get("verify_plot"))):
         if path:
             print_message(env, f"wrote {what} to {path}")
 
@@ -355,3 +393,43 @@ def _write(path: Path, text: str, option: str) -> None:
         path.write_text(text, encoding="utf-8")
     except OSError as e:
         raise PickerError(f"{option}: cannot write {path} ({e.strerror or e})") from None
+
+
+def _min_margin(text: str) -> float:
+    try:
+        m = float(text)
+    except ValueError:
+        m = float("nan")
+    if not np.isfinite(m) or m < 1.0:
+        raise PickerError(f"--min-margin: expected a number of at least 1 (got {text!r})")
+    return m
+
+
+#: Values a remedy may use when no store is open: E12 resistors and E6 capacitors (IEC 60063).
+FALLBACK_SERIES = {"resistor": ("E12", 10.0, 1e6), "capacitor": ("E6", 1e-12, 1e-3)}
+
+
+def _remedies(env: Env, design: Design, min_margin: float, temps) -> list[dict]:
+    """Remedies for bursting from the parts on hand (their bins), else from E12/E6 values."""
+    store = env.store(create=False)
+    offered = {}
+    bins: dict[str, dict[float, str]] = {"resistor": {}, "capacitor": {}}
+    if store is not None:
+        with store.Session.begin() as session:
+            for kind in ("resistor", "capacitor"):
+                rows = session.execute(select(Part.value, Part.bin).where(Part.kind == kind, Part.qty > 0)).all()
+                offered[kind] = np.array(sorted({float(v) for v, _ in rows}))
+                for v, b in rows:
+                    bins[kind].setdefault(float(v), b)
+    for kind, (series, lo, hi) in FALLBACK_SERIES.items():
+        if offered.get(kind) is None or offered[kind].size == 0:
+            offered[kind] = preferred_values(series, lo, hi)
+            bins[kind] = {}
+    found = find_remedies(design, min_margin, temps, offered["resistor"], offered["capacitor"])
+    out = []
+    for r in found:
+        d = r.as_dict()
+        d["on_hand"] = {ref: bins[design.topo.position(ref).kind].get(v) for ref, v in r.values.items()}
+        d["source"] = "store" if bins["resistor"] or bins["capacitor"] else "E-series (no store)"
+        out.append(d)
+    return out

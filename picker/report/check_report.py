@@ -164,7 +164,7 @@ def corners_table(ev: Evaluation) -> Table:
     table = Table(title="Corners (hFE typ/min/max at each temperature)", header_style="bold",
                   title_justify="left")
     for name, justify in (("", "left"), ("hFE", "right"), ("temp", "right"), ("margin", "right"),
-                          ("freq", "right"), ("IE", "right"), ("starts", "left")):
+                          ("freq", "right"), ("IE", "right"), ("starts", "left"), ("amplitude", "left")):
         table.add_column(name, justify=justify)
     margins = [c.margin for c in ev.corners]
     worst = margins.index(min(margins)) if margins else -1
@@ -174,7 +174,63 @@ def corners_table(ev: Evaluation) -> Table:
             tag = "nominal, worst"
         table.add_row(tag, f"{c.hfe:.0f}", f"{c.temp_c:g} °C", _num(c.margin, ".2f"),
                       _eng(c.freq_hz, "Hz", 4), _eng(c.ie_a, "A"), "yes" if c.starts else "no",
-                      style="bold" if k == worst else None)
+                      _settles_word(c.amplitude_settles), style="bold" if k == worst else None)
+    return table
+
+
+def _settles_word(settles: bool | None) -> str:
+    return DASH if settles is None else ("settles" if settles else "bursts")
+
+
+def dynamics_line(ev: Evaluation) -> Text:
+    """What the amplitude does after start-up, from the envelope model."""
+    if ev.amplitude_settles is None:
+        return Text("amplitude: no oscillation to settle")
+    if ev.amplitude_settles:
+        when = f" within {_eng(ev.settle_time_s, 's')} of a 1 mV start" if _finite(ev.settle_time_s) else ""
+        return Text.assemble("amplitude: ", ("settles", "bold green"), when)
+    every = f", about every {_eng(ev.burst_period_s, 's')}" if _finite(ev.burst_period_s) else ""
+    return Text.assemble("amplitude: ", ("bursts", "bold red"),
+                         f" (comes and goes{every}; the scope trace will not hold still)")
+
+
+def remedy_lines(design: Design, ev: Evaluation) -> Text | None:
+    """The remedies found for a bursting design, each with its values and worst-case margin."""
+    if ev.amplitude_settles is not False and not ev.remedies:
+        return None
+    if not ev.remedies:
+        return Text("remedy: none found among the values offered; try a smaller emitter bypass "
+                    "capacitor or more unbypassed emitter resistance by hand", style="yellow")
+    lines = []
+    for r in ev.remedies:
+        r = r if isinstance(r, dict) else r.as_dict()
+        kind = design.topo
+        change = ", ".join(f"{ref} = {format_value(v, kind.position(ref).kind)}" for ref, v in r["values"].items())
+        edge = ", ".join(f"{ref} = {format_value(v, kind.position(ref).kind)}" for ref, v in r["threshold"].items())
+        what = "split the emitter resistor" if r["kind"] == "degeneration" else "smaller bypass capacitor"
+        stock = r.get("on_hand") or {}
+        where = "; ".join(f"{ref} in bin {b}" for ref, b in stock.items() if b)
+        lines.append(Text(f"remedy ({what}): {change}; worst-case margin {r['margin_worst']:.2f}"
+                          f" (edge of settling: {edge}){'; on hand: ' + where if where else ''}",
+                          style="cyan"))
+    return Text("\n").join(lines)
+
+
+def verify_table(ev: Evaluation, verified: dict) -> Table:
+    """Prediction beside ngspice's transient."""
+    table = Table(title="Verified with ngspice (transient from a kick)", header_style="bold", title_justify="left")
+    for name, justify in (("", "left"), ("predicted", "right"), ("ngspice", "right")):
+        table.add_column(name, justify=justify)
+    amp_pred = _eng(ev.amplitude_vpp, "V") + "pp" if ev.starts else DASH
+    table.add_row("starts", "yes" if ev.starts else "no", "yes" if verified["started"] else "no")
+    table.add_row("frequency", _eng(ev.freq_hz, "Hz", 5), _eng(verified["freq_hz"], "Hz", 5))
+    table.add_row("amplitude at the tank", amp_pred,
+                  _eng(verified["amplitude_vpp"], "V") + "pp" if _finite(verified["amplitude_vpp"]) else DASH)
+    table.add_row("amplitude", _settles_word(ev.amplitude_settles),
+                  "bursts" if verified["bursts"] else ("settles" if verified["settle_time_s"] is not None
+                                                       else "not steady"))
+    table.add_row("burst period", _eng(ev.burst_period_s, "s") if _finite(ev.burst_period_s) else DASH,
+                  _eng(verified["burst_period_s"], "s") if _finite(verified["burst_period_s"]) else DASH)
     return table
 
 
@@ -197,14 +253,14 @@ def warning_lines(ev: Evaluation) -> Text:
 
 
 def check_report(design: Design, ev: Evaluation, *, npn_source: str = "",
-                 split: tuple[float, float] | None = None) -> Group:
+                 split: tuple[float, float] | None = None, verified: dict | None = None) -> Group:
     """The whole report, in reading order."""
-    return Group(
-        header(design, ev, npn_source),
-        parts_table(design),
-        defaulted_line(design),
-        hand_table(ev, split),
-        summary_line(ev),
-        corners_table(ev),
-        warning_lines(ev),
-    )
+    items = [header(design, ev, npn_source), parts_table(design), defaulted_line(design),
+             hand_table(ev, split), summary_line(ev), dynamics_line(ev), corners_table(ev)]
+    if verified is not None:
+        items.append(verify_table(ev, verified))
+    rem = remedy_lines(design, ev)
+    if rem is not None:
+        items.append(rem)
+    items.append(warning_lines(ev))
+    return Group(*items)

@@ -44,6 +44,8 @@ START_FACTOR = 3.0
 START_GROWTH = 0.01
 #: Share of the record used for frequency and amplitude when it neither settles nor bursts.
 FALLBACK_SHARE = 0.25
+#: Periods over which the envelope is averaged before it is classified (settles / bursts).
+SMOOTH_PERIODS = 8
 #: Within a burst, the flat part is where the envelope is at least this share of the burst's maximum.
 BURST_FLAT = 0.9
 #: A burst's flat part shorter than this many periods is widened to BURST_HIGH of its maximum.
@@ -188,6 +190,7 @@ class WaveformMeasure:
     window_s: tuple[float, float]
     envelope_t_s: np.ndarray = field(repr=False, compare=False)
     envelope_vpp: np.ndarray = field(repr=False, compare=False)
+    cycle_spread: float = float("nan")
 
 
 def _clean(t_s, v) -> tuple[np.ndarray, np.ndarray]:
@@ -313,6 +316,10 @@ def measure_oscillation(t_s, v, *, f_guess_hz: float | None = None) -> WaveformM
       later grows to ``START_FACTOR`` times its value there, or it grows by
       ``START_GROWTH`` per cycle over the first ``EARLY_CYCLES`` cycles and is
       no smaller at the end.
+    * The envelope is averaged over ``SMOOTH_PERIODS`` periods before it is
+      classified (:func:`picker.circuit.envelope.classify`); ``cycle_spread``
+      is the unsmoothed envelope's peak-to-peak over the steady window
+      relative to the amplitude (alternating cycles show up here).
     * ``bursts``: after having reached ``BURST_HIGH`` of its maximum, the
       envelope falls below ``BURST_LOW`` and climbs back at least once;
       ``burst_period_s`` is the median spacing of collapses (or of rises when
@@ -348,7 +355,10 @@ def measure_oscillation(t_s, v, *, f_guess_hz: float | None = None) -> WaveformM
     started = bool(late_peak >= START_FACTOR * a_ref
                    or (growth >= 1 + START_GROWTH and env[-1] >= a_ref))
 
-    cls = envelope.classify(te, env, t_ref, period)
+    # classify a cycle-smoothed envelope: a steady waveform whose alternate cycles differ
+    # (period doubling under hard saturation) holds still on a scope; bursts take hundreds of cycles
+    env_smooth = running_mean(te, env, SMOOTH_PERIODS * period)
+    cls = envelope.classify(te, env_smooth, t_ref, period)
     falls, rises, bursts, settle = cls.falls_s, cls.rises_s, cls.bursts, cls.settle_time_s
     span = t_end - t_ref
 
@@ -362,6 +372,7 @@ def measure_oscillation(t_s, v, *, f_guess_hz: float | None = None) -> WaveformM
 
     inwin = (te >= window[0]) & (te <= window[1])
     amp = float(np.median(env[inwin])) if np.any(inwin) else float("nan")
+    spread = float(np.ptp(env[inwin]) / amp) if np.any(inwin) and amp > 0 else float("nan")
     tc = rising_crossings(t, w)
     tc = tc[(tc >= window[0]) & (tc <= window[1])]
     freq = float((tc.size - 1) / (tc[-1] - tc[0])) if tc.size >= 3 else float("nan")
@@ -369,6 +380,7 @@ def measure_oscillation(t_s, v, *, f_guess_hz: float | None = None) -> WaveformM
         started=started, growth_per_cycle=growth, bursts=bursts, burst_count=cls.burst_count,
         burst_period_s=cls.burst_period_s, settle_time_s=settle, freq_hz=freq, amplitude_vpp=amp,
         window_s=(float(window[0]), float(window[1])), envelope_t_s=te, envelope_vpp=env,
+        cycle_spread=spread,
     )
 
 

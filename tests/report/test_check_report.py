@@ -10,8 +10,9 @@ from picker.circuit.checks import Warning_
 from picker.circuit.design import Design, PartInfo
 from picker.circuit.device import NpnProfile
 from picker.circuit.evaluate import Corner, Evaluation
-from picker.report.check_report import (check_report, corners_table, defaulted_line, diff_pct, hand_rows,
-                                        hand_table, header, parts_table, summary_line, warning_lines)
+from picker.report.check_report import (check_report, corners_table, defaulted_line, diff_pct, dynamics_line,
+                                        hand_rows, hand_table, header, parts_table, remedy_lines, summary_line,
+                                        warning_lines)
 
 VALUES = {"R1": 8200.0, "R2": 1500.0, "RC": 1000.0, "RE": 1200.0, "CE": 1e-6, "CC1": 100e-9,
           "C1": 4.7e-9, "L1": 1e-3, "C2": 47e-9, "CC2": 100e-9}
@@ -129,8 +130,27 @@ def test_summary_line():
 
 def test_corners_table_marks_nominal_and_worst():
     text = text_of(corners_table(make_eval()))
-    assert row_cells(text, "nominal") == ["nominal", "170", "25 °C", "4.00", "80 kHz", "1 mA", "yes"]
-    assert row_cells(text, "worst") == ["worst", "100", "0 °C", "2.50", "80.2 kHz", "950 µA", "yes"]
+    # the corners of make_eval carry no dynamics verdict: a dash
+    assert row_cells(text, "nominal") == ["nominal", "170", "25 °C", "4.00", "80 kHz", "1 mA", "yes", "—"]
+    assert row_cells(text, "worst") == ["worst", "100", "0 °C", "2.50", "80.2 kHz", "950 µA", "yes", "—"]
+
+
+def test_dynamics_line_says_what_the_amplitude_does():
+    ev = make_eval()
+    assert text_of(dynamics_line(replace(ev, amplitude_settles=True, settle_time_s=2.5e-3))).strip() == \
+        "amplitude: settles within 2.5 ms of a 1 mV start"
+    bursting = text_of(dynamics_line(replace(ev, amplitude_settles=False, burst_period_s=1.2e-3)))
+    assert "bursts" in bursting and "1.2 ms" in bursting
+    assert "no oscillation" in text_of(dynamics_line(replace(ev, amplitude_settles=None)))
+
+
+def test_remedy_lines_name_values_and_bins():
+    ev = replace(make_eval(), amplitude_settles=False, remedies=[
+        {"kind": "degeneration", "values": {"RE1": 47.0, "RE": 2200.0}, "threshold": {"RE1": 39.0, "RE": 2200.0},
+         "margin_worst": 5.9, "on_hand": {"RE1": "R-47", "RE": None}}])
+    text = " ".join(text_of(remedy_lines(make_design(), ev)).split())
+    assert "RE1 = 47 Ω" in text and "RE = 2.2 kΩ" in text and "5.90" in text and "RE1 in bin R-47" in text
+    assert remedy_lines(make_design(), make_eval()) is None
 
 
 def test_warning_lines():
