@@ -28,7 +28,8 @@ ngspice's waveforms (:mod:`picker.circuit.envelope`).
 References
 ----------
 Describing function of the junction and the squegging mechanism: K. K. Clarke
-and D. T. Hess, "Communication Circuits: Analysis and Design" (1971), ch. 6-7.
+and D. T. Hess, "Communication Circuits: Analysis and Design" (1971), ch. 6-7
+(chapter numbers from memory).
 Transistor equations: the Ebers-Moll transport model as in the SPICE
 Gummel-Poon model with no high-level injection (BR = 1, as in our model card).
 """
