@@ -20,10 +20,12 @@ and coupling capacitors.  When that pumping is slow against the envelope, the
 amplitude overshoots, starves the bias and collapses, and the cycle repeats:
 bursts.  When it is fast enough, the two settle together.
 
-The two are integrated together with ``scipy.integrate.solve_ivp`` (a stiff
-method; all designs of a batch as one block-diagonal system, each in its own
-time scale), and the envelope is classified with the same rules used on
-ngspice's waveforms (:mod:`picker.circuit.envelope`).
+For every design of a batch, the running point of the two together and the
+eigenvalues of the model linearised there decide whether it settles
+(:func:`predict`).  The designs ``check`` reports on are also integrated with
+``scipy.integrate.solve_ivp`` (one by one, LSODA), which gives the settling
+time and the burst period; that envelope is classified with the same rules
+used on ngspice's waveforms (:mod:`picker.circuit.envelope`).
 
 References
 ----------
@@ -39,13 +41,14 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import sparse, special
+from scipy import special
 from scipy.integrate import solve_ivp
 
 from picker.circuit import envelope, mna
 from picker.circuit.bias import DcPoint
 from picker.circuit.design import DesignBatch
 from picker.circuit.device import NpnModel, is_at, thermal_voltage
+from picker.circuit.engine import degeneration_ohm, dominant_index, junction_current, model_of
 from picker.circuit.topology import GROUND_NODES, merged_node
 
 #: Grid of the transconductance ratio r = Gm / gm_quiescent for the sigma table.
@@ -58,8 +61,6 @@ G_MIN = 1e-7
 A0_V = 1e-3
 #: Conductance tying each DC-floating node to ground, as the SPICE deck does, siemens.
 G_FLOAT_S = 1e-9
-#: Phase samples per cycle for a junction with series resistance.
-PHASES = 32
 #: Largest exponent allowed in the junction laws (keeps a wild trial step finite).
 EXP_CAP = 80.0
 #: Floor of ln(a) while the envelope collapses (about 2 nV).
@@ -207,12 +208,8 @@ def junction_be(j: Junctions, a, vbe_dc):
     ln_f = j.log_is + (vbe_dc + a) / vt + li0
     ln_f1 = ln_f + np.log(ratio)
     deg = j.re1 > 0
-    if np.any(deg):
-        theta = np.linspace(0, 2 * np.pi, PHASES, endpoint=False)
-        rr = np.maximum(j.re1[deg], 1e-6)[:, None]
-        z = (np.log(rr / vt[deg, None]) + j.log_is[deg, None]
-             + (vbe_dc[deg, None] + a[deg, None] * np.cos(theta)) / vt[deg, None])
-        i = (vt[deg, None] / rr) * np.real(special.wrightomega(np.minimum(z, 1e12)))
+    if np.any(deg):  # the engine's series junction law, over its phase samples
+        i, theta = junction_current(a[deg], vbe_dc[deg], j.re1[deg], j.log_is[deg], vt[deg])
         ln_f = ln_f.copy()
         ln_f1 = ln_f1.copy()
         ln_f[deg] = np.log(np.maximum(i.mean(axis=1), 1e-300))
@@ -234,15 +231,18 @@ def junction_bc(j: Junctions, a_bc, vbc_dc):
     return ln_r, g
 
 
-def sigma_table(batch: DesignBatch, hy: mna.Hybrid, omega_ref: np.ndarray):
-    """sigma (1/s) and |v_BC / v_BX| of the oscillation mode on the (r, g) grid: (n, R, G) each."""
+def sigma_table(batch: DesignBatch, hy: mna.Hybrid, tf_s: np.ndarray, omega_ref: np.ndarray):
+    """sigma (1/s) and |v_BC / v_BX| of the oscillation mode on the (r, g) grid: (n, R, G) each.
+
+    ``tf_s`` is the transit time (the diffusion part of C_pi scales with r).
+    """
     n = batch.n
     nr, ng = R_GRID.size, G_GRID.size
     sig = np.empty((n, nr, ng))
     rho = np.empty((n, nr, ng))
     for a_, r in enumerate(R_GRID):
         h = mna.Hybrid(gm_s=hy.gm_s * r, gpi_s=hy.gpi_s * r, go_s=hy.go_s,
-                       cpi_f=hy.cpi_f - (1 - r) * batch_tf(batch) * hy.gm_s, cmu_f=hy.cmu_f)
+                       cpi_f=hy.cpi_f - (1 - r) * tf_s * hy.gm_s, cmu_f=hy.cmu_f)
         mat = mna.assemble(batch, h)
         ib, ic, ie = mat.index["B"], mat.index["C"], mat.index["E"]
         ix = mat.index.get("X", ie)
@@ -261,25 +261,13 @@ def sigma_table(batch: DesignBatch, hy: mna.Hybrid, omega_ref: np.ndarray):
             gbc = (gg * hy.gm_s)[:, None, None]
             lam, vec = np.linalg.eig(np.linalg.solve(mat.c, base + gbc * (diode + rev)))
             s = -lam
-            k = _nearest_mode(s, omega_ref)
+            k, _ = dominant_index(s, omega_ref)
             rows = np.arange(n)
             sig[:, a_, b_] = s[rows, k].real
             v = vec[rows, :, k]
             with np.errstate(invalid="ignore", divide="ignore"):
                 rho[:, a_, b_] = np.abs((v[:, ib] - v[:, ic]) / (v[:, ib] - v[:, ix]))
     return sig, np.nan_to_num(rho, nan=1.0, posinf=1e3)
-
-
-def batch_tf(batch: DesignBatch) -> np.ndarray:
-    from picker.circuit.engine import model_of
-
-    return model_of(batch).tf_s
-
-
-def _nearest_mode(s: np.ndarray, omega_ref: np.ndarray) -> np.ndarray:
-    ok = s.imag > 1e-9 * np.abs(s).max(axis=1, keepdims=True)
-    dist = np.where(ok, np.abs(np.log(np.abs(s.imag) + 1e-300) - np.log(omega_ref)[:, None]), np.inf)
-    return np.argmin(dist, axis=1)
 
 
 def _bilinear(table: np.ndarray, r: np.ndarray, g: np.ndarray) -> np.ndarray:
@@ -531,8 +519,7 @@ def equilibrium(mdl: Model, steps: int = 14):
     last = np.where(found, U_SCAN - 2 - np.argmax(down[:, ::-1], axis=1), 0)
     rows = np.arange(n)
     lo, hi = us[rows, last], us[rows, last + 1]
-    state = (np.array([states[k][0][i] for i, k in enumerate(last)]),
-             np.array([states[k][1][i] for i, k in enumerate(last)]))
+    state = (np.stack([st[0] for st in states])[last, rows], np.stack([st[1] for st in states])[last, rows])
     for _ in range(steps):
         mid = 0.5 * (lo + hi)
         v, state, _ = balance(mdl, mid, start=state, with_state=True)
@@ -553,14 +540,12 @@ def stability(mdl: Model, y_eq: np.ndarray) -> np.ndarray:
 
 def build_model(batch: DesignBatch, model: NpnModel, dc: DcPoint, hy: mna.Hybrid,
                 omega_ref: np.ndarray) -> Model:
-    from picker.circuit.engine import _degeneration
-
     net = slow_network(batch)
     vt = thermal_voltage(batch.temp_c) + np.zeros(batch.n)
     j = Junctions(log_is=np.log(is_at(model, batch.temp_c)) + np.zeros(batch.n), vt=vt,
-                  bf=np.broadcast_to(model.bf, (batch.n,)).astype(float), re1=_degeneration(batch),
+                  bf=np.broadcast_to(model.bf, (batch.n,)).astype(float), re1=degeneration_ohm(batch),
                   ie_q=np.maximum(dc.ie_a, 1e-12), gm_q=np.maximum(hy.gm_s, 1e-12))
-    sig, rho = sigma_table(batch, hy, omega_ref)
+    sig, rho = sigma_table(batch, hy, np.broadcast_to(model.tf_s, (batch.n,)), omega_ref)
     tau = bias_time_constant(net)
     return Model(net=net, j=j, sig=sig, rho=rho, vcc_v=batch.vcc_v + np.zeros(batch.n), tau_s=tau)
 
@@ -570,40 +555,6 @@ def _with_floor(mdl: Model, y: np.ndarray, d: np.ndarray) -> np.ndarray:
     seed = np.abs(mdl.sig[:, 0, 0])  # the passive decay rate, 1/s
     d[:, 0] += seed * np.exp(np.minimum(U_FLOOR - y[:, 0], 50.0))
     return d
-
-
-def simulate(mdl: Model, y_start: np.ndarray, t_end_s: np.ndarray, samples: int = 2000):
-    """Integrate the envelope model from ``y_start`` (n, K); each design in its own time.
-
-    Design k runs over [0, t_end_s[k]] mapped onto a common s in [0, 1], so a
-    batch of designs with different time scales shares one stiff (BDF) solve
-    with a block-diagonal Jacobian.  The amplitude's logarithm is floored at
-    ``U_FLOOR`` by a noise-level source (a collapsed oscillation keeps its seed).
-
-    Returns (t, a, sol): t (n, samples) seconds, a (n, samples) volt.
-    """
-    n, k = y_start.shape
-    t_end = np.asarray(t_end_s, dtype=float)
-    h = np.array([1e-5] + [1e-6] * (k - 1))
-    rows = (np.arange(n)[:, None, None] * k + np.arange(k)[None, :, None]) + 0 * np.arange(k)[None, None, :]
-    cols = (np.arange(n)[:, None, None] * k + np.arange(k)[None, None, :]) + 0 * np.arange(k)[None, :, None]
-
-    def f(y):
-        return _with_floor(mdl, y, _state_rates(mdl, y)) * t_end[:, None]
-
-    def rhs(_s, yy):
-        return f(yy.reshape(n, k)).ravel()
-
-    def jac(_s, yy):
-        y = yy.reshape(n, k)
-        blocks = _fd_jacobian(f, y, f(y), h)
-        return sparse.csc_matrix((blocks.ravel(), (rows.ravel(), cols.ravel())), shape=(n * k, n * k))
-
-    s_eval = np.linspace(0.0, 1.0, samples)
-    sol = solve_ivp(rhs, (0.0, 1.0), y_start.ravel(), method="BDF", t_eval=s_eval, jac=jac,
-                    rtol=1e-4, atol=1e-6)
-    y = sol.y.reshape(n, k, -1)
-    return t_end[:, None] * sol.t[None, :], np.exp(y[:, 0, :]), sol
 
 
 def simulate_one(mdl: Model, row: int, y_start: np.ndarray, t_end_s: float, samples: int = 2000,
@@ -662,8 +613,6 @@ def predict(batch: DesignBatch, res, integrate_rows=()) -> Dynamics:
     time and the burst period and overrides the linear verdict where they
     disagree (a start-up that overshoots into bursts).
     """
-    from picker.circuit.engine import model_of
-
     n = batch.n
     out = {k: np.full(n, np.nan) for k in ("amplitude_settles", "growth_rate", "settle_time_s",
                                            "burst_period_s", "drive_v", "tau_bias_s")}

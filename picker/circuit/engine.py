@@ -151,13 +151,19 @@ def phase_zero(mat: mna.Matrices, gm_s, omega0, span=3.0, steps=40):
     return np.where(found, w, np.nan), np.where(found, tw.real, 0.0)
 
 
-def dominant_pair(s: np.ndarray, omega_ref: np.ndarray) -> np.ndarray:
-    """The natural frequency (Im > 0) nearest in log frequency to ``omega_ref``."""
+def dominant_index(s: np.ndarray, omega_ref: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Index of the natural frequency (Im > 0) nearest in log frequency to ``omega_ref``,
+    and the distances (inf where Im <= 0, so a row without any has an arbitrary index)."""
     ok = s.imag > 1e-9 * np.abs(s).max(axis=1, keepdims=True)
     dist = np.where(ok, np.abs(np.log(np.abs(s.imag) + 1e-300) - np.log(omega_ref)[:, None]), np.inf)
-    j = np.argmin(dist, axis=1)
-    pick = s[np.arange(s.shape[0]), j]
-    return np.where(np.isfinite(dist[np.arange(s.shape[0]), j]), pick, np.nan + 0j)
+    return np.argmin(dist, axis=1), dist
+
+
+def dominant_pair(s: np.ndarray, omega_ref: np.ndarray) -> np.ndarray:
+    """The natural frequency (Im > 0) nearest in log frequency to ``omega_ref``."""
+    j, dist = dominant_index(s, omega_ref)
+    rows = np.arange(s.shape[0])
+    return np.where(np.isfinite(dist[rows, j]), s[rows, j], np.nan + 0j)
 
 
 def evaluate_batch(batch: DesignBatch, large_signal: bool = True) -> BatchResult:
@@ -222,7 +228,7 @@ def _steady_state(batch, model, dc, margin, w_loop, network, iterations=8):
         r = np.where(ok, r / np.where(ok, m, 1.0), r)
     # 2. drive amplitude at which the junction (with any unbypassed RE1 in series)
     #    delivers the effective transconductance found in step 1
-    re1 = _degeneration(sub)
+    re1 = degeneration_ohm(sub)
     gm_eff = r * sdc.ic_a / vt_of(sub)
     gc_target = gm_eff / (1 + gm_eff * re1)
     drive, dcx = _drive_for(sub, sm, sdc, (r1[run], r2[run], re[run] - re1, rc[run]), re1, gc_target)
@@ -251,7 +257,7 @@ def vt_of(batch: DesignBatch) -> np.ndarray:
     return thermal_voltage(batch.temp_c)
 
 
-def _degeneration(batch: DesignBatch) -> np.ndarray:
+def degeneration_ohm(batch: DesignBatch) -> np.ndarray:
     """Unbypassed emitter resistance in series with the junction (role 'degeneration'), ohm."""
     out = np.zeros(batch.n)
     for p in batch.topology.positions:
@@ -264,7 +270,7 @@ def _degeneration(batch: DesignBatch) -> np.ndarray:
 PHASES = 32
 
 
-def _junction_current(v_drive, v_dc, re1, log_is, vt):
+def junction_current(v_drive, v_dc, re1, log_is, vt):
     """Current of a junction in series with ``re1`` driven by ``v_dc + v_drive cos(theta)``.
 
     Solves v = VT ln(i/IS) + i RE1 in closed form with the Wright omega function
@@ -297,7 +303,7 @@ def _drive_for(sub, model, dc_q, network, re1, gc_target, steps=36, inner=32):
         hi = vth.copy()
         for _ in range(inner):
             mid = 0.5 * (lo + hi)
-            i, _ = _junction_current(amp, mid, re1, log_is, vt)
+            i, _ = junction_current(amp, mid, re1, log_is, vt)
             idc = i.mean(axis=1)
             resid = vth - idc / (bf + 1) * rth - idc * re_bypassed - mid
             up = resid > 0
@@ -310,13 +316,13 @@ def _drive_for(sub, model, dc_q, network, re1, gc_target, steps=36, inner=32):
         mid = 0.5 * (lo + hi)
         amp = np.exp(mid)
         vdc = solve_vdc(amp)
-        i, theta = _junction_current(amp, vdc, re1, log_is, vt)
+        i, theta = junction_current(amp, vdc, re1, log_is, vt)
         gc = 2 * (i * np.cos(theta)[None, :]).mean(axis=1) / amp
         big = gc > gc_target
         lo, hi = np.where(big, mid, lo), np.where(big, hi, mid)
     amp = np.exp(0.5 * (lo + hi))
     vdc = solve_vdc(amp)
-    i, _ = _junction_current(amp, vdc, re1, log_is, vt)
+    i, _ = junction_current(amp, vdc, re1, log_is, vt)
     idc = i.mean(axis=1)
     ie_scale = idc / dc_q.ie_a
     # the shifted DC point: currents scaled by the rectified average

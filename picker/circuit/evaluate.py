@@ -86,14 +86,17 @@ def _clean(obj):
     return obj
 
 
-def _corner_batch(design: Design, temps: tuple[float, ...]) -> tuple[DesignBatch, list]:
-    npn = design.npn
-    hfes = (npn.hfe_nominal, npn.hfe_min, npn.hfe_max)
-    combos = [(h, t) for t in temps for h in hfes]
-    designs = [design.with_values() for _ in combos]
-    batch = DesignBatch.from_designs(designs)
-    return batch.with_(hfe=np.array([h for h, _ in combos]),
-                       temp_c=np.array([t for _, t in combos])), combos
+def corner_batch(designs: list[Design], temps: tuple[float, ...]) -> tuple[DesignBatch, list]:
+    """Every design at hFE typ/min/max of its transistor at each of ``temps``.
+
+    Rows run design by design, each design's corners in the order of the
+    returned (hFE, temperature) list (that of the first design's transistor).
+    """
+    npn = designs[0].npn
+    combos = [(h, t) for t in temps for h in (npn.hfe_nominal, npn.hfe_min, npn.hfe_max)]
+    batch = DesignBatch.from_designs([d for d in designs for _ in combos])
+    return batch.with_(hfe=np.array([h for _ in designs for h, _ in combos]),
+                       temp_c=np.array([t for _ in designs for _, t in combos])), combos
 
 
 def check_design(design: Design, temps: tuple[float, ...] | None = None,
@@ -106,7 +109,7 @@ def check_design(design: Design, temps: tuple[float, ...] | None = None,
     nominal row's envelope is also integrated (settling time, burst period).
     """
     temps = (design.temp_c,) + tuple(t for t in (temps or ()) if t != design.temp_c)
-    batch, combos = _corner_batch(design, temps)
+    batch, combos = corner_batch([design], temps)
     res = evaluate_batch(batch)
     dyn = predict_dynamics(batch, res, integrate_rows=(0,) if integrate else ())
     return _summarise(design, batch, res, combos, dyn)

@@ -23,9 +23,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from picker.circuit.design import Design, DesignBatch
+from picker.circuit.design import Design
 from picker.circuit.dynamics import predict
 from picker.circuit.engine import evaluate_batch
+from picker.circuit.evaluate import corner_batch
 
 
 @dataclass(frozen=True)
@@ -42,18 +43,9 @@ class Remedy:
                 "margin_worst": float(self.margin_worst)}
 
 
-def _corners(design: Design, temps: tuple[float, ...]) -> list[tuple[float, float]]:
-    npn = design.npn
-    return [(h, t) for t in temps for h in (npn.hfe_nominal, npn.hfe_min, npn.hfe_max)]
-
-
 def evaluate_variants(design: Design, variants: list[dict], temps: tuple[float, ...]):
     """(margin_worst, settles_everywhere) per variant: each variant a dict of changed values."""
-    corners = _corners(design, temps)
-    designs = [design.with_values(**v) for v in variants for _ in corners]
-    batch = DesignBatch.from_designs(designs)
-    batch = batch.with_(hfe=np.array([h for _ in variants for h, _ in corners]),
-                        temp_c=np.array([t for _ in variants for _, t in corners]))
+    batch, corners = corner_batch([design.with_values(**v) for v in variants], temps)
     res = evaluate_batch(batch)
     dyn = predict(batch, res)
     k = len(corners)

@@ -201,12 +201,13 @@ def remedy_lines(design: Design, ev: Evaluation) -> Text | None:
     if not ev.remedies:
         return Text("remedy: none found among the values offered; try a smaller emitter bypass "
                     "capacitor or more unbypassed emitter resistance by hand", style="yellow")
+    def values(vals: dict) -> str:
+        return ", ".join(f"{ref} = {format_value(v, design.topo.position(ref).kind)}" for ref, v in vals.items())
+
     lines = []
     for r in ev.remedies:
         r = r if isinstance(r, dict) else r.as_dict()
-        kind = design.topo
-        change = ", ".join(f"{ref} = {format_value(v, kind.position(ref).kind)}" for ref, v in r["values"].items())
-        edge = ", ".join(f"{ref} = {format_value(v, kind.position(ref).kind)}" for ref, v in r["threshold"].items())
+        change, edge = values(r["values"]), values(r["threshold"])
         what = "split the emitter resistor" if r["kind"] == "degeneration" else "smaller bypass capacitor"
         stock = r.get("on_hand") or {}
         where = "; ".join(f"{ref} in bin {b}" for ref, b in stock.items() if b)

@@ -51,7 +51,7 @@ def test_junction_with_series_resistance_matches_a_pointwise_solution():
     re1, vbe, a_v = 47.0, 0.75, 0.4
     j = _junctions(re1)
     ln_f, _ = dy.junction_be(j, np.array([a_v]), np.array([vbe]))
-    theta = np.linspace(0, 2 * np.pi, dy.PHASES, endpoint=False)
+    theta = np.linspace(0, 2 * np.pi, engine.PHASES, endpoint=False)
     vt = 0.025852
     currents = [optimize.brentq(lambda i: vt * np.log(i / 1e-14) + i * re1 - (vbe + a_v * np.cos(t)), 1e-30, 1.0,
                                 xtol=1e-18, rtol=1e-13) for t in theta]

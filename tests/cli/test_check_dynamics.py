@@ -53,11 +53,9 @@ def test_json_reports_bursting_with_remedies_from_the_e_series(run):
 
 
 def test_remedy_prefers_parts_on_hand(run):
-    result = run("stock", "add", "resistor", "56", "--qty", "10", "--bin", "R-56")
-    assert result.exit_code == 0, result.stderr
-    for value, b in (("2k2", "R-22"), ("100n", "C-100n")):
-        kind = "resistor" if value.endswith("k2") else "capacitor"
-        assert run("stock", "add", kind, value, "--qty", "10", "--bin", b).exit_code == 0
+    for kind, value, b in (("resistor", "56", "R-56"), ("resistor", "2k2", "R-22"), ("capacitor", "100n", "C-100n")):
+        result = run("stock", "add", kind, value, "--qty", "10", "--bin", b)
+        assert result.exit_code == 0, result.stderr
     d = _json(run, "--topology", "clapp")
     deg = next(r for r in d["remedies"] if r["kind"] == "degeneration")
     assert deg["values"] == {"RE1": 56.0, "RE": 2200.0}

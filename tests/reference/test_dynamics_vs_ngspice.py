@@ -75,7 +75,7 @@ def test_settling_amplitude_within_25_percent(outcomes, label):
     assert abs(ev.amplitude_vpp / sim["amplitude_vpp"] - 1) <= AMP_TOL, (ev.amplitude_vpp, sim["amplitude_vpp"])
 
 
-def _remedy_entries(outcomes):
+def _remedy_entries():
     r_ohm = preferred_values("E12", 10.0, 1e6)
     c_f = preferred_values("E6", 1e-12, 1e-3)
     out = []
@@ -89,7 +89,7 @@ def _remedy_entries(outcomes):
 
 
 def test_suggested_remedies_settle_in_ngspice(outcomes):
-    entries = _remedy_entries(outcomes)
+    entries = _remedy_entries()
     kinds = {e[0].split(" + ")[1] for e in entries}
     assert "degeneration" in kinds
     with ProcessPoolExecutor(max_workers=2) as pool:
