@@ -19,7 +19,7 @@ def pool_columns(kind: str) -> list[str]:
     cols = ["id"]
     if kind in VALUE_COLUMN:
         cols += [VALUE_COLUMN[kind], "tolerance"]
-    return cols + ["qty", "unit_cost", *RATINGS[kind]]
+    return cols + ["qty", "unit_cost", "bin", *RATINGS[kind]]
 
 
 def load_pool(session: Session, kind: str, *, in_stock_only: bool = True) -> pd.DataFrame:
@@ -41,7 +41,7 @@ def load_pool(session: Session, kind: str, *, in_stock_only: bool = True) -> pd.
         (``voltage_v``, ``power_w``, ``dcr_ohm``, ``isat_a``; npn: ``hfe_min``,
         ``hfe_max``, ``vbe_v``, ``ft_hz``, ``cob_f``, ``vaf_v``, ``vceo_v``, ``pd_w``)
         as float64 with NaN when unknown; ``dielectric`` and ``name`` as text
-        (None when unknown).  ``.to_numpy()`` on a column gives the arrays.
+        (None when unknown); ``bin`` as text.  ``.to_numpy()`` on a column gives the arrays.
     """
     if kind not in KINDS:
         raise ValueError(f"unknown kind {kind!r}")
@@ -57,7 +57,7 @@ def load_pool(session: Session, kind: str, *, in_stock_only: bool = True) -> pd.
         raw = [getattr(p, attr.get(c, c)) for p in parts]
         if c in ("id", "qty"):
             data[c] = np.array(raw, dtype=np.int64)
-        elif c in ("dielectric", "name"):
+        elif c in ("dielectric", "name", "bin"):
             data[c] = pd.Series(raw, dtype=object)
         else:
             data[c] = np.array([np.nan if v is None else v for v in raw], dtype=np.float64)

@@ -24,12 +24,12 @@ def test_pool_columns_units_and_order(store):
         df = load_pool(s, "capacitor")
         everything = load_pool(s, "capacitor", in_stock_only=False)
     assert list(df.columns) == pool_columns("capacitor") == [
-        "id", "c_f", "tolerance", "qty", "unit_cost", "voltage_v", "dielectric"]  # fmt: skip
+        "id", "c_f", "tolerance", "qty", "unit_cost", "bin", "voltage_v", "dielectric"]  # fmt: skip
     assert df["c_f"].tolist() == [1e-9, 1e-8]  # ordered by value, empty part left out
     assert df["id"].dtype == np.int64 and df["c_f"].dtype == np.float64
     assert np.isnan(df["tolerance"].iloc[0]) and df["tolerance"].iloc[1] == 0.05
     assert np.isnan(df["unit_cost"].iloc[1]) and df["unit_cost"].iloc[0] == 0.1
-    assert df["dielectric"].tolist() == [None, "C0G"]
+    assert df["dielectric"].tolist() == [None, "C0G"] and df["bin"].tolist() == ["C-2", "C-1"]
     assert len(everything) == 3
 
 

@@ -1,0 +1,602 @@
+"""``find``: the workable oscillators the drawer can build for a target, best first.
+
+Pipeline (all vectorised; the only Python loops run over topologies and
+transistor profiles, over a fixed handful of positions, and over the few
+reported candidates):
+
+1. offers: distinct values per position with their best line (``stock``);
+2. tanks inside the screen window, by binary search (``space.tanks``);
+3. bias networks meeting the divider/current/headroom rules (``space.biases``),
+   with coupling and bypass capacitors picked by reactance;
+4. meet: every tank with every bias network, screened by the hand loop gain;
+5. refine: the engine's phase-zero frequency and margin (``engine.small_signal``)
+   at nominal, then at the hFE/temperature corners, then the first-order
+   tolerance derating of the worst corner;
+6. rank: best bias network per tank by :func:`score`; the top candidates get
+   the full evaluation (steady state, envelope dynamics, ratings checks) and
+   are dropped if it rejects them;
+7. Monte Carlo yield of the reported candidates (``montecarlo``).
+
+The score is ``w_error * |freq_error| / tol + w_margin * max(0, 1 - margin_worst
+/ goal) + w_cost * cost`` with ``goal = 1.5 * min_margin`` and cost the sum of
+unit costs per board; ties go to fewer parts, then fuller bins.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+from typing import Callable
+
+import numpy as np
+
+from picker.circuit.design import Design, DesignBatch, PartInfo, complete_values, style_stray_f
+from picker.circuit.device import NpnProfile
+from picker.circuit.engine import small_signal
+from picker.circuit.evaluate import check_designs
+from picker.circuit.checks import COUPLING_FRACTION, CAP_DERATE
+from picker.circuit.bias import HAND_VT_V
+from picker.circuit.topology import get_topology
+from picker.search import space
+from picker.search.stock import Lines, Offer, best_lines, stable_mask, with_pairs
+
+#: Tank positions per topology; the last is the trim position found by binary search
+#: (and the one ``--combine`` may fill with a pair).
+TANK_REFS = {"colpitts-ce": ("L1", "C1", "C2"), "clapp": ("L1", "C1", "C2", "C3"),
+             "hartley": ("L1", "L2", "C1"), "colpitts-cb": ("L1", "C1", "C2")}
+TRIM = {"colpitts-ce": "C2", "clapp": "C3", "hartley": "C1", "colpitts-cb": "C2"}
+#: Coupling and bypass positions and what they feed.
+COUPLING_REFS = {"colpitts-ce": ("CC1", "CC2", "CE"), "clapp": ("CC1", "CC2", "CE"),
+                 "hartley": ("CC1", "CC2", "CE"), "colpitts-cb": ("CB",)}
+#: The coupling rule is applied with this safety factor on COUPLING_FRACTION, so that
+#: the engine's own impedances (slightly different from the hand figures) still pass.
+COUPLING_SAFETY = 0.5
+#: The hand loop gain can exceed the engine's margin by loading, never the reverse by
+#: more than this factor (tests/search/test_screen.py measures it).
+SCREEN_FACTOR = 1.5
+#: Work limits: tanks kept (best screen error, then cost), bias networks kept (cheapest
+#: per 10 % step of hand gain and of divider resistance), pairs refined.
+TANK_MAX = 400
+BIAS_MAX = 3000
+REFINE_MAX = 4000
+#: Relative step for the tolerance sensitivities.
+SENS_STEP = 0.01
+#: Positions whose tolerance derates the worst-case margin.
+VARIED_KINDS = ("resistor", "capacitor", "inductor")
+
+
+@dataclass(frozen=True)
+class Npn:
+    """A transistor line in the drawer."""
+
+    profile: NpnProfile
+    part_id: int | None
+    qty: int
+    cost: float
+    bin: str
+
+
+@dataclass(frozen=True)
+class Drawer:
+    """Everything on hand: lines per kind and the transistors."""
+
+    lines: dict  # kind -> Lines
+    npns: tuple  # Npn
+
+
+@dataclass(frozen=True)
+class FindSpec:
+    freq_hz: float
+    tol: float
+    topologies: tuple[str, ...]
+    min_margin: float = 2.5
+    vcc_v: float = 12.0
+    ie_a: tuple[float, float] = (0.5e-3, 3e-3)
+    npn: str | None = None  # profile name; None = any
+    boards: int = 1
+    style: str = "breadboard"
+    temps_c: tuple[float, ...] = (0.0, 50.0)
+    nominal_c: float = 25.0
+    combine: bool = False
+    top: int = 10
+    weights: dict = field(default_factory=lambda: {"error": 1.0, "margin": 1.0, "cost": 0.2})
+    mc: int = 2000
+    seed: int = 1
+
+    @property
+    def goal_margin(self) -> float:
+        return 1.5 * self.min_margin
+
+
+@dataclass(frozen=True)
+class Candidate:
+    rank: int
+    topology: str
+    npn: str
+    design: Design
+    parts: dict  # ref -> {part_id, value, bin, qty_left, part2_id, how}
+    freq_hz: float
+    freq_error: float
+    margin: float
+    margin_worst: float
+    cost: float
+    score: float
+    n_parts: int
+    yield_: float | None = None
+    warnings: tuple = ()
+    evaluation: object = None
+
+    def as_json(self) -> dict:
+        return {"rank": self.rank, "topology": self.topology, "npn": self.npn,
+                "parts": {r: dict(p) for r, p in self.parts.items()},
+                "freq_hz": self.freq_hz, "freq_error": self.freq_error, "margin": self.margin,
+                "margin_worst": self.margin_worst, "yield": self.yield_, "cost": self.cost,
+                "score": self.score, "warnings": [w.as_dict() for w in self.warnings]}
+
+
+@dataclass(frozen=True)
+class FindResult:
+    candidates: tuple
+    reasons: tuple  # one line per reason when nothing (or too little) fits
+    stats: dict
+
+
+def score(spec: FindSpec, freq_error, margin_worst, cost):
+    """The ranking score (lower is better); see the module docstring."""
+    w = spec.weights
+    short = np.maximum(0.0, 1.0 - np.asarray(margin_worst) / spec.goal_margin)
+    return (w.get("error", 0.0) * np.abs(freq_error) / spec.tol + w.get("margin", 0.0) * short
+            + w.get("cost", 0.0) * np.asarray(cost))
+
+
+# ---- offers -------------------------------------------------------------------
+
+
+def _offers(topology: str, drawer: Drawer, spec: FindSpec) -> dict[str, Offer]:
+    topo = get_topology(topology)
+    out = {}
+    for ref in TANK_REFS[topology]:
+        kind = topo.position(ref).kind
+        lines = drawer.lines.get(kind)
+        if lines is None or lines.n == 0:
+            out[ref] = None
+            continue
+        mask = stable_mask(lines) if kind == "capacitor" else None
+        off = best_lines(lines, spec.boards, mask)
+        if spec.combine and ref == TRIM[topology]:
+            off = with_pairs(off, lines, spec.boards)
+        out[ref] = off
+    return out
+
+
+def _coupling_offer(drawer: Drawer, spec: FindSpec) -> Offer | None:
+    lines = drawer.lines.get("capacitor")
+    if lines is None or lines.n == 0:
+        return None
+    derate = np.array([CAP_DERATE.get(d, 0.8) for d in lines.dielectric])
+    ok = ~np.isfinite(lines.voltage_v) | (lines.voltage_v * derate >= spec.vcc_v)
+    return best_lines(lines, spec.boards, ok)
+
+
+def _pick_coupling(coff: Offer, c_min: np.ndarray) -> np.ndarray:
+    """Smallest offered value >= c_min (index, -1 if none): a bigger coupling or bypass
+    capacitor only costs more and slows the bias's recovery (bursting)."""
+    k = np.searchsorted(coff.value, c_min, "left")
+    return np.where(k < coff.n, k, -1)
+
+
+# ---- the search ---------------------------------------------------------------
+
+
+def find(drawer: Drawer, spec: FindSpec, progress: Callable[[str, float], None] | None = None) -> FindResult:
+    """Search ``drawer`` for ``spec``; see the module docstring."""
+    tick = progress or (lambda what, frac: None)
+    reasons, stats = [], {"tanks": 0, "biases": 0, "pairs_screened": 0, "refined_rows": 0, "kept": 0}
+    npns = _distinct_npns([n for n in drawer.npns if n.qty >= spec.boards
+                           and (spec.npn is None or n.profile.name.casefold() == spec.npn.casefold())])
+    if not npns:
+        reasons.append(f"no npn transistor with {spec.boards} on hand"
+                       + (f" named {spec.npn}" if spec.npn else ""))
+    pools = []
+    nearest = []
+    plan = [(t, n) for t in spec.topologies for n in npns]
+    for k, (topology, npn) in enumerate(plan):
+        tick(f"searching {topology} with {npn.profile.name}", k / max(len(plan), 1) * 0.7)
+        got = _search_one(topology, npn, drawer, spec, stats, nearest)
+        if got is not None:
+            pools.append(got)
+    tick("ranking", 0.7)
+    cands = _rank(pools, spec, drawer, stats)
+    tick("checking the best", 0.8)
+    final = _final(cands, spec, drawer, stats, reasons)
+    if final:
+        tick("Monte Carlo yield", 0.9)
+        from picker.search.montecarlo import yield_of
+
+        final = [replace(c, yield_=yield_of(c.design, spec)) for c in final]
+    if not final:
+        _explain(spec, stats, nearest, reasons)
+    tick("done", 1.0)
+    return FindResult(tuple(final), tuple(reasons), stats)
+
+
+def _distinct_npns(npns: list[Npn]) -> list[Npn]:
+    """One line per distinct transistor profile: the cheapest, then the fullest bin."""
+    best: dict = {}
+    for n in npns:
+        p = n.profile
+        key = (p.name, p.hfe_min, p.hfe_max, p.vbe_v, p.ft_hz, p.cob_f, p.vaf_v, p.vceo_v, p.pd_w)
+        if key not in best or (n.cost, -n.qty) < (best[key].cost, -best[key].qty):
+            best[key] = n
+    return list(best.values())
+
+
+def _search_one(topology, npn: Npn, drawer: Drawer, spec: FindSpec, stats, nearest):
+    topo = get_topology(topology)
+    offers = _offers(topology, drawer, spec)
+    if any(o is None or o.n == 0 for o in offers.values()):
+        return None
+    stray = style_stray_f(spec.style)
+    ie_mid = float(np.sqrt(spec.ie_a[0] * spec.ie_a[1]))
+    caps = space.DeviceCaps.estimate(npn.profile, ie_mid)
+    w = spec.tol + space.FREQ_SLACK
+    tk = space.tanks(topology, offers, spec.freq_hz * (1 - w), spec.freq_hz * (1 + w), stray, caps)
+    if tk.n == 0:
+        wide = space.tanks(topology, offers, spec.freq_hz / 3, spec.freq_hz * 3, stray, caps)
+        if wide.n:
+            j = int(np.argmin(np.abs(np.log(wide.freq_hz / spec.freq_hz))))
+            nearest.append(float(wide.freq_hz[j]))
+        return None
+    err_s = tk.freq_hz / spec.freq_hz - 1
+    if tk.n > TANK_MAX:
+        keep = np.lexsort((tk.cost, np.abs(err_s)))[:TANK_MAX]
+        tk, err_s = tk.take(keep), err_s[keep]
+    stats["tanks"] += tk.n
+    res_lines = drawer.lines.get("resistor")
+    if res_lines is None or res_lines.n == 0:
+        return None
+    roff = best_lines(res_lines, spec.boards)
+    ce = topology != "colpitts-cb"
+    if ce:
+        need = spec.min_margin / (SCREEN_FACTOR * space.FEEDBACK_CE[1])
+        bs = space.biases(roff, npn.profile, spec.vcc_v, *spec.ie_a, common_emitter=True, min_gain=need)
+    else:
+        ind = drawer.lines["inductor"]
+        # the tank inductor carries the collector current: use the largest DCR among the tanks
+        dcr = float(np.max(ind.dcr_ohm[offers["L1"].line[tk.index["L1"]]]))
+        bs = space.biases(roff, npn.profile, spec.vcc_v, *spec.ie_a, common_emitter=False, rc_dc_ohm=dcr)
+    if bs.n == 0:
+        return None
+    coff = _coupling_offer(drawer, spec)
+    if coff is None or coff.n == 0:
+        return None
+    # coupling and bypass per bias network (hand figures, nominal hFE)
+    beta = npn.profile.hfe_nominal
+    gm = bs.ie_a / HAND_VT_V
+    re1 = np.where(bs.index.get("RE1", np.full(bs.n, -1)) >= 0,
+                   roff.value[np.maximum(bs.index.get("RE1", np.zeros(bs.n, int)), 0)], 0.0)
+    r_in = 1.0 / (1.0 / bs.rth_ohm + 1.0 / (beta / gm + (beta + 1) * re1))
+    omega = 2 * np.pi * spec.freq_hz
+    feeds = {"base": r_in, "emitter": np.minimum(roff.value[bs.index["RE"]], 1.0 / gm + re1)}
+    if ce:
+        feeds["collector"] = roff.value[bs.index["RC"]]
+    cidx = {}
+    for ref in COUPLING_REFS[topology]:
+        z = feeds[topo.position(ref).feeds]
+        cidx[ref] = _pick_coupling(coff, 1.0 / (omega * COUPLING_SAFETY * COUPLING_FRACTION * z))
+    ok = np.all([a >= 0 for a in cidx.values()], axis=0)
+    bs = bs.take(ok)
+    cidx = {r: a[ok] for r, a in cidx.items()}
+    gm = gm[ok]
+    if bs.n == 0:
+        return None
+    bcost = bs.cost + sum(coff.cost[a] for a in cidx.values())
+    bparts = bs.parts + len(cidx)
+    # hand strength: gm * load (RC; the tank's loss resistance for common base)
+    if ce:
+        re1 = re1[ok]
+        strength = gm * roff.value[bs.index["RC"]] / (1 + gm * re1)
+    else:
+        strength = gm
+    if bs.n > BIAS_MAX:  # cheapest per 10 % step of strength and divider resistance
+        key = np.stack([np.round(np.log(strength) / np.log(1.1)), np.round(np.log(bs.rth_ohm) / np.log(1.1)),
+                        bs.index.get("RE1", np.zeros(bs.n)) >= 0], axis=1)
+        order = np.lexsort((np.arange(bs.n), bcost))
+        _, first = np.unique(key[order], axis=0, return_index=True)
+        keep = np.sort(order[first])
+        if keep.size > BIAS_MAX:
+            keep = keep[np.argsort(bcost[keep], kind="stable")[:BIAS_MAX]]
+        bs, bcost, bparts, strength, gm = bs.take(keep), bcost[keep], bparts[keep], strength[keep], gm[keep]
+        cidx = {r: a[keep] for r, a in cidx.items()}
+    stats["biases"] += bs.n
+    # meet: every tank with every bias network, screened by the hand loop gain
+    it, ib = (a.ravel() for a in np.meshgrid(np.arange(tk.n), np.arange(bs.n), indexing="ij"))
+    if ce:
+        hand = strength[ib] * tk.feedback[it]
+    else:  # common base: gm * (omega L)^2/DCR (Q = 100 if unknown) * C1/(C1+C2)
+        lv = offers["L1"].value[tk.index["L1"]]
+        dcr = drawer.lines["inductor"].dcr_ohm[offers["L1"].line[tk.index["L1"]]]
+        xl = omega * lv
+        rp = np.where(dcr > 0, xl**2 / np.where(dcr > 0, dcr, 1.0), 100.0 * xl)
+        hand = strength[ib] * rp[it] * tk.feedback[it]
+    stats["pairs_screened"] += it.size
+    pass_ = hand * SCREEN_FACTOR >= spec.min_margin
+    it, ib = it[pass_], ib[pass_]
+    if it.size == 0:
+        stats.setdefault("weak", 0)
+        stats["weak"] += 1
+        return None
+    sc = score(spec, err_s[it], np.full(it.size, spec.goal_margin), tk.cost[it] + bcost[ib] + npn.cost)
+    if it.size > REFINE_MAX:
+        keep = np.argsort(sc, kind="stable")[:REFINE_MAX]
+        it, ib = it[keep], ib[keep]
+    return dict(topology=topology, npn=npn, offers=offers, roff=roff, coff=coff, tanks=tk, biases=bs,
+                cidx=cidx, it=it, ib=ib, cost=tk.cost[it] + bcost[ib] + npn.cost,
+                parts=tk.parts[it] + bparts[ib] + 1, omega_s=2 * np.pi * tk.freq_hz[it])
+
+
+# ---- refine with the engine ---------------------------------------------------
+
+
+def _values(pool, rows) -> dict[str, np.ndarray]:
+    """Designator -> value arrays of pool rows ``rows``."""
+    tk, bs, it, ib = pool["tanks"], pool["biases"], pool["it"][rows], pool["ib"][rows]
+    vals = {r: pool["offers"][r].value[tk.index[r][it]] for r in tk.index}
+    for r, a in bs.index.items():
+        if r == "RE1":
+            k = a[ib]
+            vals[r] = np.where(k >= 0, pool["roff"].value[np.maximum(k, 0)], 0.0)
+        else:
+            vals[r] = pool["roff"].value[a[ib]]
+    for r, a in pool["cidx"].items():
+        vals[r] = pool["coff"].value[a[ib]]
+    if pool["topology"] == "hartley":
+        vals["K"] = np.zeros(len(rows))
+    return vals
+
+
+def _tols(pool, rows) -> dict[str, np.ndarray]:
+    tk, bs, it, ib = pool["tanks"], pool["biases"], pool["it"][rows], pool["ib"][rows]
+    tol = {r: pool["offers"][r].tol[tk.index[r][it]] for r in tk.index}
+    for r, a in bs.index.items():
+        k = a[ib]
+        tol[r] = np.where(k >= 0, pool["roff"].tol[np.maximum(k, 0)], 0.0)
+    return tol
+
+
+def _batch(pool, rows, spec: FindSpec, hfe, temp_c, values=None) -> DesignBatch:
+    topo = get_topology(pool["topology"])
+    npn = pool["npn"].profile
+    vals = values if values is not None else _values(pool, rows)
+    n = len(rows)
+    ind = pool["offers"]
+    dcr = {}
+    for p in topo.by_kind("inductor"):
+        off = ind[p.ref]
+        lines = pool["_ind_lines"]  # tank inductors are single parts (never a --combine pair)
+        dcr[p.ref] = lines.dcr_ohm[off.line[pool["tanks"].index[p.ref][pool["it"][rows]]]]
+    full = lambda x: np.full(n, float(x))  # noqa: E731
+    return DesignBatch(topology=topo, values=vals, dcr_ohm=dcr, hfe=np.broadcast_to(hfe, (n,)).astype(float),
+                       vbe_v=full(npn.vbe_v), ft_hz=full(npn.ft_hz), cob_f=full(npn.cob_f),
+                       vaf_v=full(npn.vaf_v), vcc_v=full(spec.vcc_v),
+                       temp_c=np.broadcast_to(temp_c, (n,)).astype(float), stray_f=full(style_stray_f(spec.style)))
+
+
+def refine(pool, spec: FindSpec, drawer: Drawer, stats) -> dict:
+    """Engine figures for the pool's rows: nominal, corners, tolerance-derated worst case."""
+    pool["_ind_lines"] = drawer.lines["inductor"]
+    npn = pool["npn"].profile
+    n = pool["it"].size
+    rows = np.arange(n)
+    ss = small_signal(_batch(pool, rows, spec, npn.hfe_nominal, spec.nominal_c), pool["omega_s"])
+    stats["refined_rows"] += n
+    f = ss.freq_loop_hz
+    err = f / spec.freq_hz - 1
+    ok = np.isfinite(f) & (np.abs(err) <= spec.tol) & (ss.margin >= spec.min_margin) & ~ss.dc.saturated
+    rows = rows[ok]
+    out = {"rows": rows, "freq_hz": f[rows], "err": err[rows], "margin": ss.margin[rows],
+           "omega": 2 * np.pi * f[rows]}
+    if rows.size == 0:
+        out["worst"] = np.zeros(0)
+        return out
+    # hFE min/typ/max at each temperature (typ at nominal is the row above)
+    corners = [(h, t) for t in dict.fromkeys((spec.nominal_c,) + tuple(spec.temps_c))
+               for h in (npn.hfe_min, npn.hfe_nominal, npn.hfe_max)
+               if not (h == npn.hfe_nominal and t == spec.nominal_c)]
+    m = rows.size
+    crow = np.tile(rows, len(corners))
+    hfe = np.repeat([c[0] for c in corners], m)
+    tmp = np.repeat([c[1] for c in corners], m)
+    css = small_signal(_batch(pool, crow, spec, hfe, tmp), np.tile(out["omega"], len(corners)))
+    stats["refined_rows"] += crow.size
+    worst = np.minimum(out["margin"], css.margin.reshape(len(corners), m).min(axis=0))
+    # first-order tolerance derating: ln M_worst = ln M_corner - sum |dlnM/dlnx| ln(1+tol)
+    vals = _values(pool, rows)
+    tols = _tols(pool, rows)
+    topo = get_topology(pool["topology"])
+    varied = [r for r in vals if r in tols and topo.position(r).kind in VARIED_KINDS and np.any(vals[r] > 0)]
+    big = {r: np.tile(v, len(varied)) for r, v in vals.items()}
+    for k, r in enumerate(varied):
+        big[r][k * m:(k + 1) * m] *= 1 + SENS_STEP
+    srow = np.tile(rows, len(varied))
+    sss = small_signal(_batch(pool, srow, spec, npn.hfe_nominal, spec.nominal_c, values=big),
+                       np.tile(out["omega"], len(varied)))
+    stats["refined_rows"] += srow.size
+    with np.errstate(divide="ignore", invalid="ignore"):
+        sens = (np.log(np.maximum(sss.margin.reshape(len(varied), m), 1e-300)) - np.log(out["margin"])) / np.log1p(SENS_STEP)
+    derate = sum(np.abs(np.nan_to_num(sens[k], nan=0.0)) * np.log1p(tols[r]) for k, r in enumerate(varied))
+    out["worst"] = worst * np.exp(-derate)
+    return out
+
+
+def _rank(pools, spec: FindSpec, drawer: Drawer, stats):
+    """Refine every pool, keep the best bias network per tank, sort by score."""
+    found = []
+    for pool in pools:
+        r = refine(pool, spec, drawer, stats)
+        rows = r["rows"]
+        ok = r["worst"] >= spec.min_margin
+        rows = rows[ok]
+        if rows.size == 0:
+            continue
+        sc = score(spec, r["err"][ok], r["worst"][ok], pool["cost"][rows])
+        # best per tank: sort by (tank, score, parts, fuller bins via cost tie -> index)
+        tank = pool["it"][rows]
+        order = np.lexsort((rows, pool["parts"][rows], sc, tank))
+        first = np.ones(order.size, dtype=bool)
+        first[1:] = tank[order][1:] != tank[order][:-1]
+        pick = order[first]
+        for j in pick:
+            found.append((float(sc[j]), int(pool["parts"][rows[j]]), pool, int(rows[j]),
+                          dict(freq_hz=float(r["freq_hz"][ok][j]), err=float(r["err"][ok][j]),
+                               margin=float(r["margin"][ok][j]), worst=float(r["worst"][ok][j]))))
+    stats["kept"] = len(found)
+    found.sort(key=lambda x: (x[0], x[1], x[2]["topology"], x[3]))
+    return found
+
+
+# ---- final: full evaluation of the best --------------------------------------
+
+
+def _design(pool, row: int, spec: FindSpec) -> tuple[Design, dict]:
+    topo = get_topology(pool["topology"])
+    vals = {r: float(a[0]) for r, a in _values(pool, np.array([row])).items()}
+    if vals.get("RE1", 1.0) == 0.0:
+        vals.pop("RE1")
+    tk, bs = pool["tanks"], pool["biases"]
+    it, ib = pool["it"][row], pool["ib"][row]
+    where = {}
+    for r in tk.index:
+        off = pool["offers"][r]
+        k = tk.index[r][it]
+        where[r] = (topo.position(r).kind, int(off.line[k]), int(off.line2[k]), int(off.how[k]))
+    for r, a in bs.index.items():
+        if a[ib] >= 0:
+            where[r] = ("resistor", int(pool["roff"].line[a[ib]]), -1, 0)
+    for r, a in pool["cidx"].items():
+        where[r] = ("capacitor", int(pool["coff"].line[a[ib]]), -1, 0)
+    values, defaulted = complete_values(topo, vals)
+    return values, where
+
+
+def _final(found, spec: FindSpec, drawer: Drawer, stats, reasons) -> list[Candidate]:
+    """Full evaluation of the best, in rank order, until ``top`` pass or the list ends."""
+    out: list[Candidate] = []
+    stats["rejected_final"] = {}
+    start = 0
+    while len(out) < spec.top and start < len(found):
+        chunk = found[start:start + max(spec.top - len(out), 1) + 2]
+        start += len(chunk)
+        groups: dict = {}
+        for entry in chunk:
+            groups.setdefault((entry[2]["topology"], entry[2]["npn"].part_id), []).append(entry)
+        done = []
+        for (_, _), entries in groups.items():
+            designs, metas = [], []
+            for sc, nparts, pool, row, fig in entries:
+                values, where = _design(pool, row, spec)
+                qty_ok, parts_info, parts_json = _parts(where, drawer, spec, values)
+                if not qty_ok:
+                    stats["rejected_final"]["quantity"] = stats["rejected_final"].get("quantity", 0) + 1
+                    continue
+                npn = pool["npn"]
+                parts_json["Q1"] = {"part_id": npn.part_id, "value": npn.profile.name, "bin": npn.bin,
+                                    "qty_left": int(npn.qty - spec.boards)}
+                d = Design(topology=pool["topology"], values=values, npn=npn.profile, vcc_v=spec.vcc_v,
+                           temp_c=spec.nominal_c, style=spec.style, parts=parts_info)
+                designs.append(d)
+                metas.append((sc, nparts, pool, row, fig, parts_json))
+            evs = check_designs(designs, tuple(spec.temps_c))
+            for d, ev, meta in zip(designs, evs, metas):
+                done.append(_judge(d, ev, meta, spec, stats))
+        done = [c for c in done if c is not None]
+        done.sort(key=lambda c: (c.score, c.n_parts, -min(p["qty_left"] for p in c.parts.values())))
+        out.extend(done)
+    out.sort(key=lambda c: (c.score, c.n_parts, -min(p["qty_left"] for p in c.parts.values())))
+    return [replace(c, rank=k + 1) for k, c in enumerate(out[:spec.top])]
+
+
+#: Warnings that rule a design out of ``find`` (the rest are shown with it).
+REJECT = ("no-start", "corner-no-start", "saturated", "soft-divider", "cap-voltage", "res-power", "vceo",
+          "q-power", "tank-loading", "coupling-reactance", "tank-dielectric", "bursts")
+
+
+def _judge(design, ev, meta, spec, stats):
+    sc, nparts, pool, row, fig, parts_json = meta
+    codes = {w.code for w in ev.warnings}
+    bad = sorted(codes & set(REJECT))
+    err = ev.freq_hz / spec.freq_hz - 1 if np.isfinite(ev.freq_hz) else np.inf
+    if abs(err) > spec.tol:
+        bad.append("frequency")
+    if bad:
+        for b in bad:
+            stats["rejected_final"][b] = stats["rejected_final"].get(b, 0) + 1
+        return None
+    worst = min(fig["worst"], ev.margin_worst)
+    cost = float(pool["cost"][row])
+    s = float(score(spec, err, worst, cost))
+    return Candidate(rank=0, topology=design.topology, npn=design.npn.name, design=design, parts=parts_json,
+                     freq_hz=float(ev.freq_hz), freq_error=float(err), margin=float(ev.margin),
+                     margin_worst=float(worst), cost=cost, score=s, n_parts=nparts,
+                     warnings=tuple(ev.warnings), evaluation=ev)
+
+
+def _parts(where, drawer: Drawer, spec: FindSpec, values):
+    """PartInfo per position, the JSON parts map, and whether the quantities suffice
+    (a line used at two positions counts twice)."""
+    demand: dict = {}
+    for ref, (kind, a, b, how) in where.items():
+        for line in (a, b) if b >= 0 else (a,):
+            demand[(kind, line)] = demand.get((kind, line), 0) + spec.boards
+    ok = all(drawer.lines[k].qty[l] >= q for (k, l), q in demand.items())
+    info, js = {}, {}
+    for ref, (kind, a, b, how) in where.items():
+        L = drawer.lines[kind]
+        info[ref] = PartInfo(part_id=int(L.id[a]), tolerance=float(L.tol[a]),
+                             voltage_v=_f(L.voltage_v[a]) if b < 0 else _min2(L.voltage_v[a], L.voltage_v[b]),
+                             power_w=_f(L.power_w[a]), dielectric=L.dielectric[a] or None,
+                             dcr_ohm=float(L.dcr_ohm[a]) + (float(L.dcr_ohm[b]) if b >= 0 and how == 1 else 0.0),
+                             bin=str(L.bin[a]))
+        js[ref] = {"part_id": int(L.id[a]), "value": float(values[ref]), "bin": str(L.bin[a]),
+                   "qty_left": int(L.qty[a] - demand[(kind, a)])}
+        if b >= 0:
+            js[ref].update(part2_id=int(L.id[b]), bin2=str(L.bin[b]), how="series" if how == 1 else "parallel",
+                           value1=float(L.value[a]), value2=float(L.value[b]))
+    return ok, info, js
+
+
+def _f(x):
+    return float(x) if np.isfinite(x) else None
+
+
+def _min2(a, b):
+    vals = [float(v) for v in (a, b) if np.isfinite(v)]
+    return min(vals) if vals else None
+
+
+def _explain(spec: FindSpec, stats, nearest, reasons):
+    """One line per reason nothing fits."""
+    from picker.units import format_eng
+
+    if stats["tanks"] == 0:
+        near = ""
+        if nearest:
+            f = min(nearest, key=lambda x: abs(np.log(x / spec.freq_hz)))
+            near = f"; the nearest tank on hand gives about {format_eng(f, 'Hz')} ({f / spec.freq_hz - 1:+.1%})"
+        reasons.append(f"no tank in tolerance: no set of the inductors and capacitors on hand "
+                       f"(at least {spec.boards} each) comes within {spec.tol:.1%} of {format_eng(spec.freq_hz, 'Hz')}{near}")
+    elif stats["biases"] == 0:
+        reasons.append(f"no bias network: no resistors (and coupling capacitors) on hand give an emitter "
+                       f"current of {format_eng(spec.ie_a[0], 'A')}..{format_eng(spec.ie_a[1], 'A')} with a stiff divider "
+                       f"and {space.VCE_MIN_V:g} V of headroom at {format_eng(spec.vcc_v, 'V')}")
+    elif stats["kept"] == 0:
+        reasons.append(f"no bias reaching the margin: {stats['tanks']} tanks and {stats['biases']} bias networks "
+                       f"were tried, none gives a worst-case margin of {spec.min_margin:g} within {spec.tol:.1%}")
+    rej = stats.get("rejected_final", {})
+    if rej.get("quantity"):
+        reasons.append(f"not enough quantity for {spec.boards} boards: {rej['quantity']} designs would need "
+                       "one part at two positions beyond its stock")
+    other = {k: v for k, v in rej.items() if k != "quantity"}
+    if other:
+        reasons.append("the full check rejected the best designs: "
+                       + ", ".join(f"{k} ({v})" for k, v in sorted(other.items())))
+    reasons.append("see 'picker reorder' for the cheapest purchase that makes it work")
