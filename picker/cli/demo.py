@@ -212,30 +212,50 @@ def demo(
     result = run_demo(env.db_url if env.db_given else None)
     render_demo(env, result, as_json=as_json)
     if not as_json:
-        show_demo_check(env, env.db_url if env.db_given else None)
+        show_demo_find(env, env.db_url if env.db_given else None)
 
 
-def show_demo_check(env: Env, db_url: str | None) -> None:
-    """Check the demo design (parts from the demo store) and print the check report."""
-    from picker.circuit.evaluate import check_design
-    from picker.cli.demo_design import demo_design
-    from picker.report import bode, check_report
+#: The demo's find: a 455 kHz test tone from the demo cabinet (a target of picker's choosing).
+DEMO_FIND = dict(freq="455k", tol="1%", topology="colpitts-ce", min_margin="2.5", supply="12", ie="0.5m..3m",
+                 npn="any", boards="1", style="breadboard", temp="0..50", combine=False, top="3",
+                 weights="error=1,margin=1,cost=0.2", mc="1000", seed="1")
 
+
+def _with_demo_session(db_url: str | None, fn):
     if db_url is None:
         with demo_store(None) as (store, _):
             with store.Session.begin() as session:
-                design = demo_design(session)
-    else:
-        store = open_store(db_url)
-        try:
-            with store.Session.begin() as session:
-                design = demo_design(session)
-        finally:
-            store.close()
-    ev = check_design(design, (0.0, 50.0))
+                return fn(session)
+    store = open_store(db_url)
+    try:
+        with store.Session.begin() as session:
+            return fn(session)
+    finally:
+        store.close()
+
+
+def show_demo_find(env: Env, db_url: str | None) -> None:
+    """Run the demo's find on the demo stock, print the result and the check report of the best."""
+    from picker.circuit.evaluate import check_design
+    from picker.cli.demo_design import demo_design
+    from picker.cli.find import build_spec, load_drawer, run_find
+    from picker.report import bode, check_report
+    from picker.report.find_report import find_report
+
+    spec = build_spec(**DEMO_FIND)
+    drawer, fallback = _with_demo_session(db_url, lambda s: (load_drawer(s), demo_design(s)))
     print_message(env, "")
-    print_message(env, "Demo design checked from these parts (picker check --part REF=id:N ...):")
-    env.out.print(check_report.check_report(design, ev, npn_source="first npn in the demo store",
+    print_message(env, "picker find --freq 455k --tol 1% --topology colpitts-ce --top 3 --mc 1000 on the demo store:")
+    result = run_find(env, drawer, spec)
+    env.out.print(find_report(spec, result))
+    if result.candidates:
+        design, what = result.candidates[0].design, "The best candidate, checked in full"
+    else:
+        design, what = fallback, "The demo design, checked in full"
+    ev = check_design(design, spec.temps_c)
+    print_message(env, "")
+    print_message(env, f"{what} (picker check --part REF=id:N ...):")
+    env.out.print(check_report.check_report(design, ev, npn_source="from the demo store",
                                             split=bode.loop_split(design, ev.freq_loop_hz)))
 
 

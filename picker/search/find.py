@@ -62,6 +62,8 @@ REFINE_MAX = 4000
 SENS_STEP = 0.01
 #: Positions whose tolerance derates the worst-case margin.
 VARIED_KINDS = ("resistor", "capacitor", "inductor")
+#: How far (a factor either way) to look for the nearest achievable frequency when none fits.
+NEAREST_SPAN = 30.0
 
 
 @dataclass(frozen=True)
@@ -241,7 +243,7 @@ def _search_one(topology, npn: Npn, drawer: Drawer, spec: FindSpec, stats, neare
     w = spec.tol + space.FREQ_SLACK
     tk = space.tanks(topology, offers, spec.freq_hz * (1 - w), spec.freq_hz * (1 + w), stray, caps)
     if tk.n == 0:
-        wide = space.tanks(topology, offers, spec.freq_hz / 3, spec.freq_hz * 3, stray, caps)
+        wide = space.tanks(topology, offers, spec.freq_hz / NEAREST_SPAN, spec.freq_hz * NEAREST_SPAN, stray, caps)
         if wide.n:
             j = int(np.argmin(np.abs(np.log(wide.freq_hz / spec.freq_hz))))
             nearest.append(float(wide.freq_hz[j]))

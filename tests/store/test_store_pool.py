@@ -45,7 +45,7 @@ def test_npn_pool(store):
 def test_empty_pool_has_the_columns(store):
     with store.Session.begin() as s:
         df = load_pool(s, "inductor")
-    assert len(df) == 0 and list(df.columns) == ["id", "l_h", "tolerance", "qty", "unit_cost", "dcr_ohm", "isat_a"]
+    assert len(df) == 0 and list(df.columns) == ["id", "l_h", "tolerance", "qty", "unit_cost", "bin", "dcr_ohm", "isat_a"]
 
 
 @pytest.mark.parametrize("text, canonical", [("cog", "C0G"), ("NPO", "NP0"), ("Film", "film"), ("x7r", "X7R")])

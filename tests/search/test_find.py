@@ -1,0 +1,88 @@
+"""find on small drawers: the known design is found, every candidate re-checks, and the reasons."""
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from picker.circuit.design import Design, complete_values
+from picker.circuit.device import NpnProfile
+from picker.circuit.evaluate import check_design
+from picker.circuit.topology import get_topology
+from picker.search.find import Drawer, FindSpec, Npn, find
+from picker.search.stock import Lines
+
+KNOWN = {"R1": 33e3, "R2": 10e3, "RC": 2.2e3, "RE1": 100.0, "RE": 2.2e3, "C1": 4.7e-9, "L1": 1e-3, "C2": 47e-9}
+TEMPS = (0.0, 50.0)
+
+
+def _lines(kind, vals, qty=20, dielectric="c0g", dcr=0.0, voltage=50.0):
+    n = len(vals)
+    col = {"resistor": "r_ohm", "capacitor": "c_f", "inductor": "l_h"}[kind]
+    df = pd.DataFrame({"id": np.arange(1, n + 1) + {"resistor": 0, "capacitor": 100, "inductor": 200}[kind],
+                       col: vals, "tolerance": [0.05] * n, "qty": [qty] * n, "unit_cost": [0.1] * n,
+                       "bin": [f"{kind[0].upper()}-{i + 1}" for i in range(n)], "dielectric": [dielectric] * n,
+                       "voltage_v": [voltage] * n, "power_w": [0.25] * n, "dcr_ohm": [dcr] * n})
+    return Lines.from_frame(kind, df)
+
+
+def drawer(qty=20):
+    return Drawer(
+        {"resistor": _lines("resistor", [100.0, 1e3, 2.2e3, 4.7e3, 10e3, 33e3, 100e3], qty),
+         "capacitor": _lines("capacitor", [1e-9, 4.7e-9, 10e-9, 47e-9, 100e-9, 1e-6], qty, dielectric="film", voltage=63.0),
+         "inductor": _lines("inductor", [470e-6, 1e-3], qty, dcr=5.0)},
+        (Npn(NpnProfile(), 300, qty, 0.2, "Q-1"),),
+    )
+
+
+def _target():
+    topo = get_topology("colpitts-ce")
+    values, _ = complete_values(topo, KNOWN | {"CC1": 100e-9, "CC2": 100e-9, "CE": 1e-6})
+    from picker.circuit.design import PartInfo
+    d = Design("colpitts-ce", values, style="breadboard", parts={"L1": PartInfo(dcr_ohm=5.0)})
+    return check_design(d, TEMPS, integrate=False).freq_hz
+
+
+@pytest.fixture(scope="module")
+def found():
+    spec = FindSpec(freq_hz=_target(), tol=0.01, topologies=("colpitts-ce",), min_margin=1.5, top=3, mc=300)
+    return spec, find(drawer(), spec)
+
+
+def test_known_design_is_found(found):
+    spec, res = found
+    assert res.candidates, res.reasons
+    tanks = [{r: c.parts[r]["value"] for r in ("L1", "C1", "C2")} for c in res.candidates]
+    assert {"L1": 1e-3, "C1": 4.7e-9, "C2": 47e-9} in tanks
+
+
+def test_every_candidate_rechecks_with_the_engine(found):
+    """An independent check_design (all corners, envelope dynamics) of each reported design."""
+    spec, res = found
+    for c in res.candidates:
+        ev = check_design(c.design, TEMPS, integrate=False)
+        assert abs(ev.freq_hz / spec.freq_hz - 1) <= spec.tol
+        assert ev.margin_worst >= spec.min_margin
+        assert c.margin_worst <= ev.margin_worst + 1e-9  # tolerance derating only lowers it
+        assert ev.amplitude_settles is True
+        assert 0.0 <= c.yield_ <= 1.0
+        codes = {w.code for w in ev.warnings}
+        assert not codes & {"saturated", "soft-divider", "cap-voltage", "coupling-reactance", "bursts"}
+        assert [c.rank for c in res.candidates] == list(range(1, len(res.candidates) + 1))
+    scores = [c.score for c in res.candidates]
+    assert scores == sorted(scores)
+
+
+def test_far_target_names_the_nearest_tank():
+    spec = FindSpec(freq_hz=5e6, tol=0.01, topologies=("colpitts-ce",), top=3, mc=0)
+    res = find(drawer(), spec)
+    assert res.candidates == ()
+    assert res.reasons[0].startswith("no tank in tolerance")
+    assert "nearest tank on hand" in res.reasons[0]
+    assert "picker reorder" in res.reasons[-1]
+
+
+def test_too_few_parts_for_the_boards():
+    spec = FindSpec(freq_hz=_target(), tol=0.01, topologies=("colpitts-ce",), boards=30, top=3, mc=0)
+    res = find(drawer(qty=20), spec)
+    assert res.candidates == ()
+    assert any("30 on hand" in r or "no tank" in r for r in res.reasons)
