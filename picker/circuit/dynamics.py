@@ -272,10 +272,12 @@ def sigma_table(batch: DesignBatch, hy: mna.Hybrid, tf_s: np.ndarray, omega_ref:
 
 def _bilinear(table: np.ndarray, r: np.ndarray, g: np.ndarray) -> np.ndarray:
     """Interpolate (n, R, G) tables at one (r, g) per design."""
-    r = np.clip(r, R_GRID[0], R_GRID[-1])
-    g = np.clip(g, G_GRID[0], G_GRID[-1])
-    i = np.clip(np.searchsorted(R_GRID, r) - 1, 0, R_GRID.size - 2)
-    k = np.clip(np.searchsorted(G_GRID, g) - 1, 0, G_GRID.size - 2)
+    # np.minimum/np.maximum rather than np.clip: the same numbers, a fraction of the
+    # per-call overhead (this runs some 10^5 times per batch of designs)
+    r = np.minimum(np.maximum(r, R_GRID[0]), R_GRID[-1])
+    g = np.minimum(np.maximum(g, G_GRID[0]), G_GRID[-1])
+    i = np.minimum(np.maximum(R_GRID.searchsorted(r) - 1, 0), R_GRID.size - 2)
+    k = np.minimum(np.maximum(G_GRID.searchsorted(g) - 1, 0), G_GRID.size - 2)
     tr = (r - R_GRID[i]) / (R_GRID[i + 1] - R_GRID[i])
     tg = (g - G_GRID[k]) / (G_GRID[k + 1] - G_GRID[k])
     rows = np.arange(table.shape[0])

@@ -157,5 +157,22 @@ def responses(mat: Matrices, omega: np.ndarray, rows: np.ndarray | None = None,
     for s in range(0, n, step):  # chunks bound memory; each chunk is one batched solve
         sl = slice(s, s + step)
         a = mat.g[sl, None] + 1j * omega[sl, :, None, None] * mat.c[sl, None]
-        out[sl] = np.linalg.solve(a, np.broadcast_to(rhs, a.shape[:-1])[..., None])[..., 0]
+        b = np.broadcast_to(rhs, a.shape[:-1])[..., None]
+        try:
+            out[sl] = np.linalg.solve(a, b)[..., 0]
+        except np.linalg.LinAlgError:
+            out[sl] = _solve_each(a, b)
     return out
+
+
+def _solve_each(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """The rare chunk holding a singular system (a grid frequency exactly at an ideal
+    resonance, a zero-valued part): solve system by system, NaN where singular."""
+    flat_a, flat_b = a.reshape(-1, *a.shape[-2:]), b.reshape(-1, *b.shape[-2:])
+    res = np.full(flat_b.shape[:-1], np.nan, dtype=complex)
+    for j in range(flat_a.shape[0]):
+        try:
+            res[j] = np.linalg.solve(flat_a[j], flat_b[j])[..., 0]
+        except np.linalg.LinAlgError:
+            pass
+    return res.reshape(a.shape[:-1])

@@ -217,7 +217,7 @@ def demo(
 
 #: The demo's find: a 455 kHz test tone from the demo cabinet (a target of picker's choosing).
 DEMO_FIND = dict(freq="455k", tol="1%", topology="colpitts-ce", min_margin="2.5", supply="12", ie="0.5m..3m",
-                 npn="any", boards="1", style="breadboard", temp="0..50", combine=False, top="3",
+                 npn="npn-general", boards="1", style="breadboard", temp="0..50", combine=False, top="3",
                  weights="error=1,margin=1,cost=0.2", mc="1000", seed="1")
 
 
@@ -245,7 +245,7 @@ def show_demo_find(env: Env, db_url: str | None) -> None:
     spec = build_spec(**DEMO_FIND)
     drawer, fallback = _with_demo_session(db_url, lambda s: (load_drawer(s), demo_design(s)))
     print_message(env, "")
-    print_message(env, "picker find --freq 455k --tol 1% --topology colpitts-ce --top 3 --mc 1000 on the demo store:")
+    print_message(env, "picker find --freq 455k --tol 1% --topology colpitts-ce --npn npn-general --top 3 --mc 1000 on the demo store:")
     result = run_find(env, drawer, spec)
     env.out.print(find_report(spec, result))
     if result.candidates:

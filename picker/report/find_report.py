@@ -28,18 +28,24 @@ def find_report(spec, result) -> Group:
     if not result.candidates:
         items += [Text(r) for r in result.reasons]
         return Group(*items)
-    t = Table(show_lines=True)
-    for col, j in (("#", "right"), ("topology", "left"), ("parts: designator value [bin] left", "left"),
-                   ("freq", "right"), ("error", "right"), ("margin", "right"), ("worst", "right"),
-                   ("yield", "right"), ("cost", "right")):
+    # one compact row of figures per candidate, then its parts as wrapped text: a parts
+    # column inside the table is unreadable in an 80-column terminal
+    t = Table(show_lines=False)
+    for col, j in (("#", "right"), ("topology", "left"), ("freq", "right"), ("error", "right"),
+                   ("margin", "right"), ("worst", "right"), ("yield", "right"), ("cost", "right")):
         t.add_column(col, justify=j)
+    for c in result.candidates:
+        y = "-" if c.yield_ is None else f"{c.yield_:.1%}"
+        t.add_row(str(c.rank), c.topology, format_eng(c.freq_hz, "Hz", digits=5), f"{c.freq_error:+.2%}",
+                  f"{c.margin:.2f}", f"{c.margin_worst:.2f}", y, f"{c.cost:.2f}")
+    items.append(t)
+    items.append(Text("parts: designator value [bin] quantity left after", style="dim"))
     for c in result.candidates:
         topo = c.design.topo
         cells = [_part_cell(ref, p, topo.position(ref).kind if ref != "Q1" else "npn") for ref, p in c.parts.items()]
-        y = "-" if c.yield_ is None else f"{c.yield_:.1%}"
-        t.add_row(str(c.rank), c.topology, "\n".join(cells), format_eng(c.freq_hz, "Hz", digits=5),
-                  f"{c.freq_error:+.2%}", f"{c.margin:.2f}", f"{c.margin_worst:.2f}", y, f"{c.cost:.2f}")
-    items.append(t)
+        line = Text(f"#{c.rank} ", style="bold")
+        line.append(" · ".join(cells))
+        items.append(line)
     s = result.stats
     items.append(Text(f"searched {s['tanks']} tanks x {s['biases']} bias networks ({s['pairs_screened']} pairs "
                       f"screened), {s['refined_rows']} engine rows; yield over {spec.mc} Monte Carlo samples "

@@ -50,14 +50,22 @@ COUPLING_REFS = {"colpitts-ce": ("CC1", "CC2", "CE"), "clapp": ("CC1", "CC2", "C
 #: The coupling rule is applied with this safety factor on COUPLING_FRACTION, so that
 #: the engine's own impedances (slightly different from the hand figures) still pass.
 COUPLING_SAFETY = 0.5
-#: The hand loop gain can exceed the engine's margin by loading, never the reverse by
-#: more than this factor (tests/search/test_screen.py measures it).
+#: The hand return ratio (:func:`hand_return_ratio`) can exceed the engine's margin,
+#: never the reverse by more than this factor (tests/search/test_screen.py measures at
+#: most 1.43 for the common-emitter Colpitts, median 0.71).
 SCREEN_FACTOR = 1.5
-#: Work limits: tanks kept (best screen error, then cost), bias networks kept (cheapest
-#: per 10 % step of hand gain and of divider resistance), pairs refined.
+#: Work limits: tanks kept (best screen error, then cost), bias networks kept
+#: (:func:`_thin_biases`), pairs refined.
 TANK_MAX = 400
 BIAS_MAX = 3000
-REFINE_MAX = 4000
+REFINE_MAX = 40_000
+#: Pairs are refined in chunks of this many, best first by the screen's own score, until
+#: ENOUGH_TANKS x top distinct tanks pass (or REFINE_MAX pairs were refined).
+REFINE_CHUNK = 1000
+ENOUGH_TANKS = 3
+#: The screen's ordering estimates the engine's margin as this fraction of the hand
+#: figure (the median engine/hand ratio tests/search/test_screen.py measures is 0.7).
+HAND_TYPICAL = 0.7
 #: Relative step for the tolerance sensitivities.
 SENS_STEP = 0.01
 #: Positions whose tolerance derates the worst-case margin.
@@ -192,22 +200,8 @@ def _pick_coupling(coff: Offer, c_min: np.ndarray) -> np.ndarray:
 def find(drawer: Drawer, spec: FindSpec, progress: Callable[[str, float], None] | None = None) -> FindResult:
     """Search ``drawer`` for ``spec``; see the module docstring."""
     tick = progress or (lambda what, frac: None)
-    reasons, stats = [], {"tanks": 0, "biases": 0, "pairs_screened": 0, "refined_rows": 0, "kept": 0}
-    npns = _distinct_npns([n for n in drawer.npns if n.qty >= spec.boards
-                           and (spec.npn is None or n.profile.name.casefold() == spec.npn.casefold())])
-    if not npns:
-        reasons.append(f"no npn transistor with {spec.boards} on hand"
-                       + (f" named {spec.npn}" if spec.npn else ""))
-    pools = []
-    nearest = []
-    plan = [(t, n) for t in spec.topologies for n in npns]
-    for k, (topology, npn) in enumerate(plan):
-        tick(f"searching {topology} with {npn.profile.name}", k / max(len(plan), 1) * 0.7)
-        got = _search_one(topology, npn, drawer, spec, stats, nearest)
-        if got is not None:
-            pools.append(got)
-    tick("ranking", 0.7)
-    cands = _rank(pools, spec, drawer, stats)
+    reasons, stats, nearest = [], _new_stats(), []
+    cands = ranked(drawer, spec, stats, reasons, nearest, tick)
     tick("checking the best", 0.8)
     final = _final(cands, spec, drawer, stats, reasons)
     if final:
@@ -221,6 +215,41 @@ def find(drawer: Drawer, spec: FindSpec, progress: Callable[[str, float], None] 
     return FindResult(tuple(final), tuple(reasons), stats)
 
 
+def _new_stats() -> dict:
+    return {"tanks": 0, "biases": 0, "pairs_screened": 0, "refined_rows": 0, "kept": 0}
+
+
+def ranked(drawer: Drawer, spec: FindSpec, stats: dict | None = None, reasons: list | None = None,
+           nearest: list | None = None, tick: Callable[[str, float], None] | None = None) -> list:
+    """Steps 1-6 up to the ranking (before the full evaluation): entries
+    ``(score, parts, pool, row, figures)`` best first, one per tank and
+    (topology, transistor).  :func:`entry_values` gives an entry's values."""
+    tick = tick or (lambda what, frac: None)
+    stats = _new_stats() if stats is None else stats
+    reasons = [] if reasons is None else reasons
+    nearest = [] if nearest is None else nearest
+    npns = _distinct_npns([n for n in drawer.npns if n.qty >= spec.boards
+                           and (spec.npn is None or n.profile.name.casefold() == spec.npn.casefold())])
+    if not npns:
+        reasons.append(f"no npn transistor with {spec.boards} on hand"
+                       + (f" named {spec.npn}" if spec.npn else ""))
+    pools = []
+    plan = [(t, n) for t in spec.topologies for n in npns]
+    for k, (topology, npn) in enumerate(plan):
+        tick(f"searching {topology} with {npn.profile.name}", k / max(len(plan), 1) * 0.7)
+        got = _search_one(topology, npn, drawer, spec, stats, nearest)
+        if got is not None:
+            pools.append(got)
+    tick("ranking", 0.7)
+    return _rank(pools, spec, drawer, stats)
+
+
+def entry_values(entry) -> dict:
+    """Designator -> value of a :func:`ranked` entry (RE1 = 0 when absent)."""
+    _, _, pool, row, _ = entry
+    return {r: float(a[0]) for r, a in _values(pool, np.array([row])).items()}
+
+
 def _distinct_npns(npns: list[Npn]) -> list[Npn]:
     """One line per distinct transistor profile: the cheapest, then the fullest bin."""
     best: dict = {}
@@ -232,6 +261,42 @@ def _distinct_npns(npns: list[Npn]) -> list[Npn]:
     return list(best.values())
 
 
+def hand_return_ratio(gm_s, rc_ohm, r_in_ohm, re1_ohm, l_h, dcr_ohm, omega, fb):
+    """The screen's hand figure for a common-emitter Colpitts: the return ratio at gm,
+    ``gm (Ro fb / (1 + fb^2 Ro / Ri) - RE1)``, with Ro = RC parallel to the coil's loss
+    resistance (omega L)^2/DCR, Ri the base's input resistance and fb = C1/C2.
+
+    From the two-node analysis of the loop (collector node: Ro and C1; base node: Ri
+    and C2; L between) at its phase zero, the loop gain is gm Ro fb / (1 + fb^2 Ro/Ri)
+    (a textbook derivation, done here by hand); the engine's margin is that return ratio
+    (how far gm may fall before the loop stops starting), and an unbypassed RE1 lowers it
+    by about gm RE1 (not by the factor 1 + gm RE1 of the degenerated voltage gain).
+    """
+    with np.errstate(divide="ignore"):
+        loss = np.where(dcr_ohm > 0, dcr_ohm / (omega * l_h) ** 2, 0.0)
+    ro = 1.0 / (1.0 / rc_ohm + loss)
+    return gm_s * (ro * fb / (1.0 + fb**2 * ro / r_in_ohm) - re1_ohm)
+
+
+def _thin_biases(strength, rth_ohm, degeneration, cost) -> np.ndarray:
+    """Indices of at most BIAS_MAX bias networks: the cheapest per step of hand strength
+    (gm RC), divider resistance and degeneration (gm RE1), the step widened (10 %, 20 %,
+    40 %, ...) until few enough remain, so the survivors still span every kind of bias."""
+    order = np.lexsort((np.arange(cost.size), cost))
+    step = 1.1
+    while True:
+        lg = np.log(step)
+        key = np.zeros(cost.size, dtype=np.int64)
+        for x in (np.log(strength), np.log(rth_ohm), np.log1p(degeneration)):  # one int64 key
+            k = np.round(x / lg).astype(np.int64)
+            k -= k.min()
+            key = key * (int(k.max()) + 1) + k
+        _, first = np.unique(key[order], return_index=True)
+        if first.size <= BIAS_MAX:
+            return np.sort(order[first])
+        step = step**2
+
+
 def _search_one(topology, npn: Npn, drawer: Drawer, spec: FindSpec, stats, nearest):
     topo = get_topology(topology)
     offers = _offers(topology, drawer, spec)
@@ -240,8 +305,7 @@ def _search_one(topology, npn: Npn, drawer: Drawer, spec: FindSpec, stats, neare
     stray = style_stray_f(spec.style)
     ie_mid = float(np.sqrt(spec.ie_a[0] * spec.ie_a[1]))
     caps = space.DeviceCaps.estimate(npn.profile, ie_mid)
-    w = spec.tol + space.FREQ_SLACK
-    tk = space.tanks(topology, offers, spec.freq_hz * (1 - w), spec.freq_hz * (1 + w), stray, caps)
+    tk = space.tanks(topology, offers, *space.screen_window(spec.freq_hz, spec.tol), stray, caps)
     if tk.n == 0:
         wide = space.tanks(topology, offers, spec.freq_hz / NEAREST_SPAN, spec.freq_hz * NEAREST_SPAN, stray, caps)
         if wide.n:
@@ -259,8 +323,8 @@ def _search_one(topology, npn: Npn, drawer: Drawer, spec: FindSpec, stats, neare
     roff = best_lines(res_lines, spec.boards)
     ce = topology != "colpitts-cb"
     if ce:
-        need = spec.min_margin / (SCREEN_FACTOR * space.FEEDBACK_CE[1])
-        bs = space.biases(roff, npn.profile, spec.vcc_v, *spec.ie_a, common_emitter=True, min_gain=need)
+        bs = space.biases(roff, npn.profile, spec.vcc_v, *spec.ie_a, common_emitter=True,
+                          min_gain=spec.min_margin / SCREEN_FACTOR, fb_max=space.FEEDBACK_CE[1])
     else:
         ind = drawer.lines["inductor"]
         # the tank inductor carries the collector current: use the largest DCR among the tanks
@@ -288,32 +352,26 @@ def _search_one(topology, npn: Npn, drawer: Drawer, spec: FindSpec, stats, neare
     ok = np.all([a >= 0 for a in cidx.values()], axis=0)
     bs = bs.take(ok)
     cidx = {r: a[ok] for r, a in cidx.items()}
-    gm = gm[ok]
+    gm, re1, r_in = gm[ok], re1[ok], r_in[ok]
     if bs.n == 0:
         return None
     bcost = bs.cost + sum(coff.cost[a] for a in cidx.values())
     bparts = bs.parts + len(cidx)
     # hand strength: gm * load (RC; the tank's loss resistance for common base)
-    if ce:
-        re1 = re1[ok]
-        strength = gm * roff.value[bs.index["RC"]] / (1 + gm * re1)
-    else:
-        strength = gm
-    if bs.n > BIAS_MAX:  # cheapest per 10 % step of strength and divider resistance
-        key = np.stack([np.round(np.log(strength) / np.log(1.1)), np.round(np.log(bs.rth_ohm) / np.log(1.1)),
-                        bs.index.get("RE1", np.zeros(bs.n)) >= 0], axis=1)
-        order = np.lexsort((np.arange(bs.n), bcost))
-        _, first = np.unique(key[order], axis=0, return_index=True)
-        keep = np.sort(order[first])
-        if keep.size > BIAS_MAX:
-            keep = keep[np.argsort(bcost[keep], kind="stable")[:BIAS_MAX]]
-        bs, bcost, bparts, strength, gm = bs.take(keep), bcost[keep], bparts[keep], strength[keep], gm[keep]
+    strength = gm * roff.value[bs.index["RC"]] if ce else gm
+    if bs.n > BIAS_MAX:
+        keep = _thin_biases(strength, bs.rth_ohm, gm * re1, bcost)
+        bs, bcost, bparts, strength, gm, re1, r_in = (bs.take(keep), bcost[keep], bparts[keep], strength[keep],
+                                                      gm[keep], re1[keep], r_in[keep])
         cidx = {r: a[keep] for r, a in cidx.items()}
     stats["biases"] += bs.n
     # meet: every tank with every bias network, screened by the hand loop gain
     it, ib = (a.ravel() for a in np.meshgrid(np.arange(tk.n), np.arange(bs.n), indexing="ij"))
     if ce:
-        hand = strength[ib] * tk.feedback[it]
+        hand = hand_return_ratio(gm[ib], roff.value[bs.index["RC"]][ib], r_in[ib], re1[ib],
+                                 offers["L1"].value[tk.index["L1"]][it],
+                                 drawer.lines["inductor"].dcr_ohm[offers["L1"].line[tk.index["L1"]]][it],
+                                 2 * np.pi * tk.freq_hz[it], tk.feedback[it])
     else:  # common base: gm * (omega L)^2/DCR (Q = 100 if unknown) * C1/(C1+C2)
         lv = offers["L1"].value[tk.index["L1"]]
         dcr = drawer.lines["inductor"].dcr_ohm[offers["L1"].line[tk.index["L1"]]]
@@ -327,10 +385,10 @@ def _search_one(topology, npn: Npn, drawer: Drawer, spec: FindSpec, stats, neare
         stats.setdefault("weak", 0)
         stats["weak"] += 1
         return None
-    sc = score(spec, err_s[it], np.full(it.size, spec.goal_margin), tk.cost[it] + bcost[ib] + npn.cost)
-    if it.size > REFINE_MAX:
-        keep = np.argsort(sc, kind="stable")[:REFINE_MAX]
-        it, ib = it[keep], ib[keep]
+    # best first by the screen's own figures (refined in that order, in chunks)
+    sc = score(spec, err_s[it], HAND_TYPICAL * hand[pass_], tk.cost[it] + bcost[ib] + npn.cost)
+    keep = np.argsort(sc, kind="stable")[:REFINE_MAX]
+    it, ib = it[keep], ib[keep]
     return dict(topology=topology, npn=npn, offers=offers, roff=roff, coff=coff, tanks=tk, biases=bs,
                 cidx=cidx, it=it, ib=ib, cost=tk.cost[it] + bcost[ib] + npn.cost,
                 parts=tk.parts[it] + bparts[ib] + 1, omega_s=2 * np.pi * tk.freq_hz[it])
@@ -383,20 +441,23 @@ def _batch(pool, rows, spec: FindSpec, hfe, temp_c, values=None) -> DesignBatch:
                        temp_c=np.broadcast_to(temp_c, (n,)).astype(float), stray_f=full(style_stray_f(spec.style)))
 
 
-def refine(pool, spec: FindSpec, drawer: Drawer, stats) -> dict:
-    """Engine figures for the pool's rows: nominal, corners, tolerance-derated worst case."""
+def refine(pool, spec: FindSpec, drawer: Drawer, stats, rows: np.ndarray | None = None) -> dict:
+    """Engine figures for the pool's ``rows`` (default all): nominal, corners,
+    tolerance-derated worst case."""
     pool["_ind_lines"] = drawer.lines["inductor"]
     npn = pool["npn"].profile
-    n = pool["it"].size
-    rows = np.arange(n)
-    ss = small_signal(_batch(pool, rows, spec, npn.hfe_nominal, spec.nominal_c), pool["omega_s"])
-    stats["refined_rows"] += n
+    rows = np.arange(pool["it"].size) if rows is None else np.asarray(rows)
+    omega_s = pool["omega_s"][rows]
+    ss = small_signal(_batch(pool, rows, spec, npn.hfe_nominal, spec.nominal_c), omega_s)
+    stats["refined_rows"] += rows.size
     f = ss.freq_loop_hz
     err = f / spec.freq_hz - 1
-    ok = np.isfinite(f) & (np.abs(err) <= spec.tol) & (ss.margin >= spec.min_margin) & ~ss.dc.saturated
+    pull = f / (omega_s / (2 * np.pi)) - 1  # from the tank's own resonance
+    ok = (np.isfinite(f) & (np.abs(err) <= spec.tol) & (np.abs(pull) <= space.FREQ_SLACK)
+          & (ss.margin >= spec.min_margin) & ~ss.dc.saturated)
+    out = {"rows": rows[ok], "freq_hz": f[ok], "err": err[ok], "margin": ss.margin[ok],
+           "omega": 2 * np.pi * f[ok]}
     rows = rows[ok]
-    out = {"rows": rows, "freq_hz": f[rows], "err": err[rows], "margin": ss.margin[rows],
-           "omega": 2 * np.pi * f[rows]}
     if rows.size == 0:
         out["worst"] = np.zeros(0)
         return out
@@ -430,11 +491,28 @@ def refine(pool, spec: FindSpec, drawer: Drawer, stats) -> dict:
     return out
 
 
+def _refine_chunks(pool, spec: FindSpec, drawer: Drawer, stats) -> dict:
+    """:func:`refine` over the pool's rows in screen order, chunk by chunk, until enough
+    distinct tanks pass; the results concatenated."""
+    n = pool["it"].size
+    parts, tanks = [], set()
+    for start in range(0, n, REFINE_CHUNK):
+        r = refine(pool, spec, drawer, stats, np.arange(start, min(start + REFINE_CHUNK, n)))
+        parts.append(r)
+        tanks.update(pool["it"][r["rows"][r["worst"] >= spec.min_margin]].tolist())
+        if len(tanks) >= ENOUGH_TANKS * spec.top:
+            break
+    if not parts:
+        return {k: np.zeros(0, dtype=int if k == "rows" else float)
+                for k in ("rows", "freq_hz", "err", "margin", "omega", "worst")}
+    return {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
+
+
 def _rank(pools, spec: FindSpec, drawer: Drawer, stats):
     """Refine every pool, keep the best bias network per tank, sort by score."""
     found = []
     for pool in pools:
-        r = refine(pool, spec, drawer, stats)
+        r = _refine_chunks(pool, spec, drawer, stats)
         rows = r["rows"]
         ok = r["worst"] >= spec.min_margin
         rows = rows[ok]
@@ -490,9 +568,9 @@ def _final(found, spec: FindSpec, drawer: Drawer, stats, reasons) -> list[Candid
         start += len(chunk)
         groups: dict = {}
         for entry in chunk:
-            groups.setdefault((entry[2]["topology"], entry[2]["npn"].part_id), []).append(entry)
+            groups.setdefault(entry[2]["topology"], []).append(entry)  # one engine batch per topology
         done = []
-        for (_, _), entries in groups.items():
+        for entries in groups.values():
             designs, metas = [], []
             for sc, nparts, pool, row, fig in entries:
                 values, where = _design(pool, row, spec)

@@ -21,10 +21,18 @@ from picker.circuit.device import MJE, VJE_V
 from picker.circuit.bias import HAND_VT_V
 from picker.search.stock import Offer
 
-#: Frequency window of the closed-form screen beyond the tolerance (fraction).  The
-#: engine's phase-zero frequency differs from the screen's by well under this for
-#: a tank of loaded Q >= 10 (tests/search/test_screen.py measures it).
+#: How far (fraction) the loop's frequency may be pulled from the tank's own resonance
+#: (strays and transistor capacitance included, the screen figure) by loading.  A
+#: design pulled further has its frequency set by the bias resistors and the
+#: transistor rather than by the tank (it drifts with hFE and temperature), and is
+#: not a result.  So the screen window [f(1-tol)/(1+s), f(1+tol)/(1-s)] loses nothing.
 FREQ_SLACK = 0.05
+
+
+def screen_window(freq_hz: float, tol: float, slack: float = FREQ_SLACK) -> tuple[float, float]:
+    """Tank resonances that can give a loop frequency within ``tol`` of ``freq_hz`` when
+    the pull is at most ``slack``."""
+    return freq_hz * (1 - tol) / (1 + slack), freq_hz * (1 + tol) / (1 - slack)
 #: Feedback ratios searched (common practice for these circuits: C1/C2 or L2/L1 of
 #: about 0.1-0.5 for common emitter; the window is wider so the engine decides).
 FEEDBACK_CE = (0.05, 1.0)
@@ -41,9 +49,16 @@ STIFF = 0.1
 VCE_MIN_V = 1.5
 #: Unbypassed emitter resistance offered, ohm (none, or an on-hand value in this range).
 RE1_RANGE_OHM = (10.0, 1e3)
-#: Collector resistors tried per bias core: the smallest few that reach the gain needed
-#: (a larger RC only eats headroom once the margin is there).
-RC_PER_CORE = 4
+#: Collector resistors tried per bias core: at most this many, spread evenly over the
+#: values between the one that can reach the margin and the one that leaves VCE_MIN_V
+#: of headroom.  Applied only when the (core, RC) pairs would exceed RC_PAIRS_LIMIT.
+RC_PER_CORE = 6
+RC_PAIRS_LIMIT = 200_000
+#: Bias cores (R1, R2, RE, RE1) are bucketed (the cheapest per 5 % step of emitter
+#: current, 10 % step of divider resistance and RE1 value) only above this count;
+#: below it the enumeration is complete (tests/search/test_exact.py proves the search
+#: equals a brute force there).
+CORE_LIMIT = 20_000
 
 
 def expand(start: np.ndarray, stop: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -227,7 +242,7 @@ class Biases:
 
 
 def biases(res: Offer, npn: NpnProfile, vcc_v: float, ie_lo_a: float, ie_hi_a: float,
-           common_emitter: bool, rc_dc_ohm: float = 0.0, min_gain: float = 0.0) -> Biases:
+           common_emitter: bool, rc_dc_ohm: float = 0.0, min_gain: float = 0.0, fb_max: float = 1.0) -> Biases:
     """Every bias network from ``res`` meeting the divider, current and headroom rules.
 
     ``rc_dc_ohm`` is the collector's DC resistance when there is no RC (the
@@ -259,28 +274,33 @@ def biases(res: Offer, npn: NpnProfile, vcc_v: float, ie_lo_a: float, ie_hi_a: f
     re_tot = v[ire] + re1
     ie = head[o] / (re_tot + rth / (beta + 1))
     keep = re1 <= v[ire]  # the unbypassed part no larger than the bypassed
-    # one core (R1, R2, RE, RE1) per 5 % step of emitter current, 10 % step of divider
-    # resistance and RE1 value: the cheapest (then lowest indices); near-equal cores
-    # give near-equal oscillators
-    key = (np.round(np.log(ie) / np.log(1.05)).astype(np.int64) * 1_000_003
-           + np.round(np.log(rth) / np.log(1.1)).astype(np.int64) * 1009 + (ie1 + 1))
-    cost0 = res.cost[i1] + res.cost[i2] + res.cost[ire] + np.where(ie1 >= 0, res.cost[np.maximum(ie1, 0)], 0.0)
-    cand = np.flatnonzero(keep)
-    order = cand[np.lexsort((cand, cost0[cand], key[cand]))]
-    first = np.ones(order.size, dtype=bool)
-    first[1:] = key[order][1:] != key[order][:-1]
-    core = np.sort(order[first])
+    core = np.flatnonzero(keep)
+    if core.size > CORE_LIMIT:
+        # one core per 5 % step of emitter current, 10 % step of divider resistance and
+        # RE1 value: the cheapest (then lowest indices); near-equal cores give
+        # near-equal oscillators
+        key = (np.round(np.log(ie) / np.log(1.05)).astype(np.int64) * 1_000_003
+               + np.round(np.log(rth) / np.log(1.1)).astype(np.int64) * 1009 + (ie1 + 1))
+        cost0 = res.cost[i1] + res.cost[i2] + res.cost[ire] + np.where(ie1 >= 0, res.cost[np.maximum(ie1, 0)], 0.0)
+        order = core[np.lexsort((core, cost0[core], key[core]))]
+        first = np.ones(order.size, dtype=bool)
+        first[1:] = key[order][1:] != key[order][:-1]
+        core = np.sort(order[first])
     i1, i2, ire, ie1, re1, rth, re_tot, ie = (a[core] for a in (i1, i2, ire, ie1, re1, rth, re_tot, ie))
     idx = {"R1": i1, "R2": i2, "RE": ire, "RE1": ie1}
     ic = ie * beta / (beta + 1)
     if common_emitter:
-        # RC: from the smallest that can reach min_gain (hand gain with the largest feedback
-        # ratio) up to RC_PER_CORE values, and never past VCE_MIN_V of headroom
-        rc_lo = min_gain * (HAND_VT_V / ie + re1)
+        # RC: from the smallest that can reach min_gain (the screen's hand return ratio
+        # gm (RC fb - RE1) at the largest feedback ratio fb_max) up to RC_PER_CORE values,
+        # and never past VCE_MIN_V of headroom
+        rc_lo = (min_gain * HAND_VT_V / ie + re1) / fb_max
         rc_hi = (vcc_v - ie * re_tot - VCE_MIN_V) / np.maximum(ic, 1e-12)
         s, e = np.searchsorted(v, rc_lo, "left"), np.searchsorted(v, rc_hi, "right")
-        e = np.minimum(e, s + RC_PER_CORE)
         o, irc = expand(s, e)
+        if o.size > RC_PAIRS_LIMIT:  # at most RC_PER_CORE values per core, spread over its range
+            stride = np.maximum(1, -(-(e - s) // RC_PER_CORE))
+            spread = (irc - s[o]) % stride[o] == 0
+            o, irc = o[spread], irc[spread]
         idx = {k: a[o] for k, a in idx.items()}
         idx["RC"] = irc
         ie, rth, re_tot, ic = ie[o], rth[o], re_tot[o], ic[o]
@@ -295,9 +315,3 @@ def biases(res: Offer, npn: NpnProfile, vcc_v: float, ie_lo_a: float, ie_hi_a: f
     parts = sum((a >= 0).astype(int) for a in idx.values())
     return Biases(idx, ie, rth, vce, np.asarray(cost, float), np.asarray(parts))
 
-
-def gain_figure(b: Biases, res: Offer, temp_c: float = 25.0) -> np.ndarray:
-    """Hand gain RC/(r'e + RE1) of each bias network (common emitter), r'e = VT/IE."""
-    re_small = HAND_VT_V / b.ie_a
-    re1 = np.where(b.index["RE1"] >= 0, res.value[np.maximum(b.index["RE1"], 0)], 0.0)
-    return res.value[b.index["RC"]] / (re_small + re1)

@@ -1,17 +1,27 @@
 """End to end: picker find on a temporary demo store; user mistakes are one-line errors."""
 
 import json
+import shutil
 
 import pytest
 
 from picker.circuit.evaluate import check_design
 from tests.cli.cli_helpers import assert_user_error
+from tests.cli.conftest import Run
+
+
+@pytest.fixture(scope="module")
+def demo_store_file(tmp_path_factory):
+    """The demo store, built once (``demo --json`` fills it without running the demo's find)."""
+    path = tmp_path_factory.mktemp("demo") / "demo.sqlite"
+    r = Run(path)("demo", "--json")
+    assert r.exit_code == 0, r.output
+    return path
 
 
 @pytest.fixture
-def demo_db(run):
-    r = run("demo", "--db", run.db, db=False)
-    assert r.exit_code == 0, r.output
+def demo_db(run, demo_store_file):
+    shutil.copyfile(demo_store_file, run.db)
     return run
 
 
