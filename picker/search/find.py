@@ -282,18 +282,13 @@ def _thin_biases(strength, rth_ohm, degeneration, cost) -> np.ndarray:
     """Indices of at most BIAS_MAX bias networks: the cheapest per step of hand strength
     (gm RC), divider resistance and degeneration (gm RE1), the step widened (10 %, 20 %,
     40 %, ...) until few enough remain, so the survivors still span every kind of bias."""
-    order = np.lexsort((np.arange(cost.size), cost))
     step = 1.1
     while True:
         lg = np.log(step)
-        key = np.zeros(cost.size, dtype=np.int64)
-        for x in (np.log(strength), np.log(rth_ohm), np.log1p(degeneration)):  # one int64 key
-            k = np.round(x / lg).astype(np.int64)
-            k -= k.min()
-            key = key * (int(k.max()) + 1) + k
-        _, first = np.unique(key[order], return_index=True)
-        if first.size <= BIAS_MAX:
-            return np.sort(order[first])
+        keep = space.cheapest_per_step(cost, ((np.log(strength), lg), (np.log(rth_ohm), lg),
+                                               (np.log1p(degeneration), lg)))
+        if keep.size <= BIAS_MAX:
+            return keep
         step = step**2
 
 
@@ -564,7 +559,8 @@ def _final(found, spec: FindSpec, drawer: Drawer, stats, reasons) -> list[Candid
     stats["rejected_final"] = {}
     start = 0
     while len(out) < spec.top and start < len(found):
-        chunk = found[start:start + max(spec.top - len(out), 1) + 2]
+        # generous chunks: the full check's cost is mostly per call, not per design
+        chunk = found[start:start + 2 * max(spec.top - len(out), 1) + 4]
         start += len(chunk)
         groups: dict = {}
         for entry in chunk:

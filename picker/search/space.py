@@ -54,6 +54,14 @@ RE1_RANGE_OHM = (10.0, 1e3)
 #: of headroom.  Applied only when the (core, RC) pairs would exceed RC_PAIRS_LIMIT.
 RC_PER_CORE = 6
 RC_PAIRS_LIMIT = 200_000
+#: Work limits of the bias enumeration for large drawers (an E96 drawer has ~480
+#: resistor values): divider pairs above DIVIDER_LIMIT keep the cheapest per 2 % step
+#: of VB and RTh; RE1 values above RE1_MAX the cheapest per 20 % step; RE choices above
+#: RE_PAIRS_LIMIT at most RE_PER_CORE per (divider, RE1), spread over the window.
+DIVIDER_LIMIT = 20_000
+RE1_MAX = 24
+RE_PAIRS_LIMIT = 2_000_000
+RE_PER_CORE = 8
 #: Bias cores (R1, R2, RE, RE1) are bucketed (the cheapest per 5 % step of emitter
 #: current, 10 % step of divider resistance and RE1 value) only above this count;
 #: below it the enumeration is complete (tests/search/test_exact.py proves the search
@@ -241,6 +249,19 @@ class Biases:
                       self.vce_v[k], self.cost[k], self.parts[k])
 
 
+def cheapest_per_step(cost: np.ndarray, cells: tuple) -> np.ndarray:
+    """Sorted indices of the cheapest entry (then the lowest index) per cell; ``cells``
+    holds (quantity, step) pairs, the quantity cut into steps of that size."""
+    key = np.zeros(cost.size, dtype=np.int64)
+    for x, step in cells:
+        k = np.round(x / step).astype(np.int64)
+        k -= k.min()
+        key = key * (int(k.max()) + 1) + k
+    order = np.lexsort((np.arange(cost.size), cost))
+    _, first = np.unique(key[order], return_index=True)
+    return np.sort(order[first])
+
+
 def biases(res: Offer, npn: NpnProfile, vcc_v: float, ie_lo_a: float, ie_hi_a: float,
            common_emitter: bool, rc_dc_ohm: float = 0.0, min_gain: float = 0.0, fb_max: float = 1.0) -> Biases:
     """Every bias network from ``res`` meeting the divider, current and headroom rules.
@@ -256,8 +277,14 @@ def biases(res: Offer, npn: NpnProfile, vcc_v: float, ie_lo_a: float, ie_hi_a: f
     rth = r1 * r2 / (r1 + r2)
     ok = (vth >= npn.vbe_v + VB_MIN_ABOVE_VBE_V) & (vth <= VB_MAX_FRACTION * vcc_v) & (vcc_v / (r1 + r2) <= ie_hi_a)
     i1, i2, vth, rth = i1[ok], i2[ok], vth[ok], rth[ok]
+    if i1.size > DIVIDER_LIMIT:  # the cheapest pair per 2 % step of VB and of RTh
+        keep = cheapest_per_step(res.cost[i1] + res.cost[i2],
+                                  ((np.log(vth), np.log(1.02)), (np.log(rth), np.log(1.02))))
+        i1, i2, vth, rth = i1[keep], i2[keep], vth[keep], rth[keep]
     # RE1: none (-1) or an on-hand value in RE1_RANGE_OHM (common emitter only)
     opts = np.flatnonzero((v >= RE1_RANGE_OHM[0]) & (v <= RE1_RANGE_OHM[1])) if common_emitter else np.zeros(0, int)
+    if opts.size > RE1_MAX:  # the cheapest per 20 % step (E12-like spacing)
+        opts = opts[cheapest_per_step(res.cost[opts], ((np.log(v[opts]), np.log(1.2)),))]
     opts = np.concatenate([[-1], opts])
     p, q = (a.ravel() for a in np.meshgrid(np.arange(i1.size), np.arange(opts.size), indexing="ij"))
     i1, i2, vth, rth, ie1 = i1[p], i2[p], vth[p], rth[p], opts[q]
@@ -269,7 +296,13 @@ def biases(res: Offer, npn: NpnProfile, vcc_v: float, ie_lo_a: float, ie_hi_a: f
     # stiffness: RTh/(beta+1) <= STIFF * (RE + RE1)
     re_lo = np.maximum(re_lo, rth / (beta + 1) / STIFF - re1)
     s, e = _between(v, re_lo, re_hi)
+    if np.maximum(e - s, 0).sum() > RE_PAIRS_LIMIT:  # at most RE_PER_CORE values, spread over the window
+        stride = np.maximum(1, -(-(e - s) // RE_PER_CORE))
+    else:
+        stride = np.ones(s.size, dtype=np.int64)
     o, ire = expand(s, e)
+    spread = (ire - s[o]) % stride[o] == 0
+    o, ire = o[spread], ire[spread]
     i1, i2, vth, rth, ie1, re1 = i1[o], i2[o], vth[o], rth[o], ie1[o], re1[o]
     re_tot = v[ire] + re1
     ie = head[o] / (re_tot + rth / (beta + 1))
@@ -279,13 +312,10 @@ def biases(res: Offer, npn: NpnProfile, vcc_v: float, ie_lo_a: float, ie_hi_a: f
         # one core per 5 % step of emitter current, 10 % step of divider resistance and
         # RE1 value: the cheapest (then lowest indices); near-equal cores give
         # near-equal oscillators
-        key = (np.round(np.log(ie) / np.log(1.05)).astype(np.int64) * 1_000_003
-               + np.round(np.log(rth) / np.log(1.1)).astype(np.int64) * 1009 + (ie1 + 1))
         cost0 = res.cost[i1] + res.cost[i2] + res.cost[ire] + np.where(ie1 >= 0, res.cost[np.maximum(ie1, 0)], 0.0)
-        order = core[np.lexsort((core, cost0[core], key[core]))]
-        first = np.ones(order.size, dtype=bool)
-        first[1:] = key[order][1:] != key[order][:-1]
-        core = np.sort(order[first])
+        sub = cheapest_per_step(cost0[core], ((np.log(ie[core]), np.log(1.05)), (np.log(rth[core]), np.log(1.1)),
+                                               (ie1[core].astype(float), 1.0)))
+        core = core[sub]
     i1, i2, ire, ie1, re1, rth, re_tot, ie = (a[core] for a in (i1, i2, ire, ie1, re1, rth, re_tot, ie))
     idx = {"R1": i1, "R2": i2, "RE": ire, "RE1": ie1}
     ic = ie * beta / (beta + 1)
