@@ -34,9 +34,9 @@ def drawer(qty=20):
     )
 
 
-def _target():
+def _target(**change):
     topo = get_topology("colpitts-ce")
-    values, _ = complete_values(topo, KNOWN | {"CC1": 100e-9, "CC2": 100e-9, "CE": 1e-6})
+    values, _ = complete_values(topo, KNOWN | {"CC1": 100e-9, "CC2": 100e-9, "CE": 1e-6} | change)
     from picker.circuit.design import PartInfo
     d = Design("colpitts-ce", values, style="breadboard", parts={"L1": PartInfo(dcr_ohm=5.0)})
     return check_design(d, TEMPS, integrate=False).freq_hz
@@ -86,3 +86,25 @@ def test_too_few_parts_for_the_boards():
     res = find(drawer(qty=20), spec)
     assert res.candidates == ()
     assert any("30 on hand" in r or "no tank" in r for r in res.reasons)
+
+
+def test_combine_makes_an_odd_value_from_two_on_hand():
+    """C2 = 57 nF is not in the drawer; 47 nF || 10 nF is (the practice --combine serves)."""
+    f = _target(C2=57e-9)
+    ranked_pairs = []
+    for combine in (False, True):
+        spec = FindSpec(freq_hz=f, tol=0.003, topologies=("colpitts-ce",), min_margin=1.5, top=3, mc=0,
+                        combine=combine)
+        ranked_pairs.append(find(drawer(), spec))
+    plain, combined = ranked_pairs
+    assert all("how" not in p for c in plain.candidates for p in c.parts.values())
+    pairs = [c for c in combined.candidates if "how" in c.parts["C2"]]
+    assert pairs, combined.reasons
+    for c in pairs:
+        p = c.parts["C2"]
+        both = (p["value1"] + p["value2"]) if p["how"] == "parallel" else 1 / (1 / p["value1"] + 1 / p["value2"])
+        assert np.isclose(p["value"], both, rtol=1e-12) and abs(c.freq_error) <= 0.003
+        ev = check_design(c.design, TEMPS, integrate=False)  # the pair's value is what the engine used
+        assert abs(ev.freq_hz / f - 1) <= 0.003
+    best_plain = min((abs(c.freq_error) for c in plain.candidates), default=np.inf)
+    assert min(abs(c.freq_error) for c in pairs) < best_plain
