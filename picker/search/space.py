@@ -28,11 +28,6 @@ from picker.search.stock import Offer
 #: not a result.  So the screen window [f(1-tol)/(1+s), f(1+tol)/(1-s)] loses nothing.
 FREQ_SLACK = 0.05
 
-
-def screen_window(freq_hz: float, tol: float, slack: float = FREQ_SLACK) -> tuple[float, float]:
-    """Tank resonances that can give a loop frequency within ``tol`` of ``freq_hz`` when
-    the pull is at most ``slack``."""
-    return freq_hz * (1 - tol) / (1 + slack), freq_hz * (1 + tol) / (1 - slack)
 #: Feedback ratios searched (common practice for these circuits: C1/C2 or L2/L1 of
 #: about 0.1-0.5 for common emitter; the window is wider so the engine decides).
 FEEDBACK_CE = (0.05, 1.0)
@@ -67,6 +62,23 @@ RE_PER_CORE = 8
 #: below it the enumeration is complete (tests/search/test_exact.py proves the search
 #: equals a brute force there).
 CORE_LIMIT = 20_000
+
+
+def screen_window(freq_hz: float, tol: float, slack: float = FREQ_SLACK) -> tuple[float, float]:
+    """Tank resonances that can give a loop frequency within ``tol`` of ``freq_hz`` when
+    the pull is at most ``slack``."""
+    return freq_hz * (1 - tol) / (1 + slack), freq_hz * (1 + tol) / (1 - slack)
+
+
+def expand_spread(start: np.ndarray, stop: np.ndarray, limit: int, per: int) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`expand`, but when it would give more than ``limit`` pairs, at most about
+    ``per`` inner indices per outer one, evenly spread over its range."""
+    outer, inner = expand(start, stop)
+    if outer.size > limit:
+        stride = np.maximum(1, -(-(stop - start) // per))
+        spread = (inner - start[outer]) % stride[outer] == 0
+        outer, inner = outer[spread], inner[spread]
+    return outer, inner
 
 
 def expand(start: np.ndarray, stop: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -296,13 +308,7 @@ def biases(res: Offer, npn: NpnProfile, vcc_v: float, ie_lo_a: float, ie_hi_a: f
     # stiffness: RTh/(beta+1) <= STIFF * (RE + RE1)
     re_lo = np.maximum(re_lo, rth / (beta + 1) / STIFF - re1)
     s, e = _between(v, re_lo, re_hi)
-    if np.maximum(e - s, 0).sum() > RE_PAIRS_LIMIT:  # at most RE_PER_CORE values, spread over the window
-        stride = np.maximum(1, -(-(e - s) // RE_PER_CORE))
-    else:
-        stride = np.ones(s.size, dtype=np.int64)
-    o, ire = expand(s, e)
-    spread = (ire - s[o]) % stride[o] == 0
-    o, ire = o[spread], ire[spread]
+    o, ire = expand_spread(s, e, RE_PAIRS_LIMIT, RE_PER_CORE)
     i1, i2, vth, rth, ie1, re1 = i1[o], i2[o], vth[o], rth[o], ie1[o], re1[o]
     re_tot = v[ire] + re1
     ie = head[o] / (re_tot + rth / (beta + 1))
@@ -326,11 +332,7 @@ def biases(res: Offer, npn: NpnProfile, vcc_v: float, ie_lo_a: float, ie_hi_a: f
         rc_lo = (min_gain * HAND_VT_V / ie + re1) / fb_max
         rc_hi = (vcc_v - ie * re_tot - VCE_MIN_V) / np.maximum(ic, 1e-12)
         s, e = np.searchsorted(v, rc_lo, "left"), np.searchsorted(v, rc_hi, "right")
-        o, irc = expand(s, e)
-        if o.size > RC_PAIRS_LIMIT:  # at most RC_PER_CORE values per core, spread over its range
-            stride = np.maximum(1, -(-(e - s) // RC_PER_CORE))
-            spread = (irc - s[o]) % stride[o] == 0
-            o, irc = o[spread], irc[spread]
+        o, irc = expand_spread(s, e, RC_PAIRS_LIMIT, RC_PER_CORE)
         idx = {k: a[o] for k, a in idx.items()}
         idx["RC"] = irc
         ie, rth, re_tot, ic = ie[o], rth[o], re_tot[o], ic[o]

@@ -92,14 +92,13 @@ def _one_npn(drawer, spec, npn):
           & (v["RE1"] <= v["RE"]) & (vce >= 1.5))
     g = {r: a[ok] for r, a in g.items()}
     v = {r: a[ok] for r, a in v.items()}
-    ie = ie[ok]
+    ie, rth = ie[ok], rth[ok]
     # coupling and bypass by their rule
     derate = np.array([CAP_DERATE.get(d, 0.8) for d in C.dielectric])
     cc = ic[~np.isfinite(C.voltage_v[ic]) | (C.voltage_v[ic] * derate[ic] >= vcc)]
     cc = cc[np.argsort(C.value[cc], kind="stable")]
     gm = ie / HAND_VT_V
-    rth_ok = v["R1"] * v["R2"] / (v["R1"] + v["R2"])
-    r_in = 1.0 / (1.0 / rth_ok + 1.0 / (p.hfe_nominal / gm + (p.hfe_nominal + 1) * v["RE1"]))
+    r_in = 1.0 / (1.0 / rth + 1.0 / (p.hfe_nominal / gm + (p.hfe_nominal + 1) * v["RE1"]))
     feeds = {"CC1": v["RC"], "CC2": r_in, "CE": np.minimum(v["RE"], 1.0 / gm + v["RE1"])}
     omega = 2 * np.pi * spec.freq_hz
     keep = np.ones(ie.size, dtype=bool)
