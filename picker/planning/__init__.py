@@ -1,0 +1,1 @@
+"""Planning: supplier catalogs and the reorder plan (a mixed-integer program)."""
