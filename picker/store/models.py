@@ -2,7 +2,7 @@
 
 The tables are created and changed by the migration scripts in the top-level
 ``db/migrations`` package; these classes must describe the schema those scripts
-leave behind (``tests/store/test_migrate.py`` compares the two).
+leave behind (``tests/store/test_store_migrations.py`` compares the two).
 
 All numbers are SI base units (ohm, farad, henry, volt, watt, ampere, hertz);
 tolerances are fractions (0.05 for 5 %).  Timestamps are stored as naive UTC
@@ -22,11 +22,12 @@ from sqlalchemy import (
     String,
     Text,
     TypeDecorator,
+    UniqueConstraint,
 )
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
 #: Schema version this code reads and writes; the highest migration in db/migrations.
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 
 
 class UTCDateTime(TypeDecorator):
@@ -121,3 +122,138 @@ class LedgerEntry(Base):
     user: Mapped[str | None] = mapped_column("user_name", String(64))
 
     part: Mapped[Part] = relationship(back_populates="ledger")
+
+
+# ---- v3: supplier catalogs and orders (db/migrations/0003_catalogs_orders.py) ----------
+
+
+class SupplierRow(Base):
+    """A supplier whose catalog was imported (``picker catalog import``)."""
+
+    __tablename__ = "suppliers"
+    __table_args__ = (CheckConstraint("order_charge >= 0", name="ck_suppliers_order_charge"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    name: Mapped[str] = mapped_column(String(64), unique=True)
+    order_charge: Mapped[float] = mapped_column(Double)  # fixed charge per order placed
+    imported_at: Mapped[dt.datetime] = mapped_column(UTCDateTime)
+    source: Mapped[str | None] = mapped_column(Text)  # file name of the last import
+
+    items: Mapped[list[CatalogItemRow]] = relationship(back_populates="supplier", order_by="CatalogItemRow.id")
+
+
+class CatalogItemRow(Base):
+    """One purchasable item of a supplier (one catalog CSV row)."""
+
+    __tablename__ = "catalog_items"
+    __table_args__ = (
+        UniqueConstraint("supplier_id", "sku", name="uq_catalog_items_sku"),
+        CheckConstraint("pack >= 1", name="ck_catalog_items_pack"),
+        CheckConstraint("min_order >= 1", name="ck_catalog_items_min_order"),
+        CheckConstraint(
+            "kind IN ('resistor', 'capacitor', 'inductor', 'npn')", name="ck_catalog_items_kind"
+        ),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    supplier_id: Mapped[int] = mapped_column(ForeignKey("suppliers.id"), index=True)
+    sku: Mapped[str] = mapped_column(String(64))
+    kind: Mapped[str] = mapped_column(String(16))
+    value: Mapped[float | None] = mapped_column(Double)
+    tolerance: Mapped[float | None] = mapped_column(Double)
+    voltage_v: Mapped[float | None] = mapped_column(Double)
+    power_w: Mapped[float | None] = mapped_column(Double)
+    dielectric: Mapped[str | None] = mapped_column(String(16))
+    dcr_ohm: Mapped[float | None] = mapped_column(Double)
+    isat_a: Mapped[float | None] = mapped_column(Double)
+    name: Mapped[str | None] = mapped_column(String(64))
+    hfe_min: Mapped[float | None] = mapped_column(Double)
+    hfe_max: Mapped[float | None] = mapped_column(Double)
+    vbe_v: Mapped[float | None] = mapped_column(Double)
+    ft_hz: Mapped[float | None] = mapped_column(Double)
+    cob_f: Mapped[float | None] = mapped_column(Double)
+    vaf_v: Mapped[float | None] = mapped_column(Double)
+    vceo_v: Mapped[float | None] = mapped_column(Double)
+    pd_w: Mapped[float | None] = mapped_column(Double)
+    pack: Mapped[int] = mapped_column(Integer)
+    min_order: Mapped[int] = mapped_column(Integer)
+
+    supplier: Mapped[SupplierRow] = relationship(back_populates="items")
+    breaks: Mapped[list[PriceBreak]] = relationship(back_populates="item", order_by="PriceBreak.min_qty")
+
+
+class PriceBreak(Base):
+    """Unit price of a catalog item once at least ``min_qty`` units are bought."""
+
+    __tablename__ = "price_breaks"
+    __table_args__ = (
+        UniqueConstraint("item_id", "min_qty", name="uq_price_breaks_qty"),
+        CheckConstraint("min_qty >= 1", name="ck_price_breaks_min_qty"),
+        CheckConstraint("unit_price > 0", name="ck_price_breaks_unit_price"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    item_id: Mapped[int] = mapped_column(ForeignKey("catalog_items.id"), index=True)
+    min_qty: Mapped[int] = mapped_column(Integer)
+    unit_price: Mapped[float] = mapped_column(Double)
+
+    item: Mapped[CatalogItemRow] = relationship(back_populates="breaks")
+
+
+class Order(Base):
+    """An order placed with suppliers: expected (``incoming``) until booked into stock (``received``)."""
+
+    __tablename__ = "orders"
+    __table_args__ = (CheckConstraint("status IN ('incoming', 'received')", name="ck_orders_status"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    created_at: Mapped[dt.datetime] = mapped_column(UTCDateTime)
+    status: Mapped[str] = mapped_column(String(16))
+    received_at: Mapped[dt.datetime | None] = mapped_column(UTCDateTime)
+    user: Mapped[str | None] = mapped_column("user_name", String(64))  # as the ledger
+    total_cost: Mapped[float] = mapped_column(Double)  # lines plus each supplier's order charge
+    note: Mapped[str | None] = mapped_column(Text)
+
+    lines: Mapped[list[OrderLine]] = relationship(back_populates="order", order_by="OrderLine.id")
+
+
+class OrderLine(Base):
+    """One line of an order: a copy of the item bought (no link to the catalog, which may be re-imported)."""
+
+    __tablename__ = "order_lines"
+    __table_args__ = (
+        CheckConstraint("packs >= 1", name="ck_order_lines_packs"),
+        CheckConstraint("qty >= 1", name="ck_order_lines_qty"),
+        CheckConstraint("cost >= 0", name="ck_order_lines_cost"),
+        CheckConstraint(
+            "kind IN ('resistor', 'capacitor', 'inductor', 'npn')", name="ck_order_lines_kind"
+        ),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    order_id: Mapped[int] = mapped_column(ForeignKey("orders.id"), index=True)
+    supplier: Mapped[str] = mapped_column(String(64))
+    sku: Mapped[str] = mapped_column(String(64))
+    kind: Mapped[str] = mapped_column(String(16))
+    value: Mapped[float | None] = mapped_column(Double)
+    tolerance: Mapped[float | None] = mapped_column(Double)
+    voltage_v: Mapped[float | None] = mapped_column(Double)
+    power_w: Mapped[float | None] = mapped_column(Double)
+    dielectric: Mapped[str | None] = mapped_column(String(16))
+    dcr_ohm: Mapped[float | None] = mapped_column(Double)
+    isat_a: Mapped[float | None] = mapped_column(Double)
+    name: Mapped[str | None] = mapped_column(String(64))
+    hfe_min: Mapped[float | None] = mapped_column(Double)
+    hfe_max: Mapped[float | None] = mapped_column(Double)
+    vbe_v: Mapped[float | None] = mapped_column(Double)
+    ft_hz: Mapped[float | None] = mapped_column(Double)
+    cob_f: Mapped[float | None] = mapped_column(Double)
+    vaf_v: Mapped[float | None] = mapped_column(Double)
+    vceo_v: Mapped[float | None] = mapped_column(Double)
+    pd_w: Mapped[float | None] = mapped_column(Double)
+    packs: Mapped[int] = mapped_column(Integer)
+    qty: Mapped[int] = mapped_column(Integer)
+    cost: Mapped[float] = mapped_column(Double)
+    part_id: Mapped[int | None] = mapped_column(ForeignKey("parts.id"))  # set when received
+
+    order: Mapped[Order] = relationship(back_populates="lines")

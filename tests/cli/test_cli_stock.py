@@ -12,7 +12,7 @@ from rich.console import Console
 
 from picker import units
 from picker.cli.env import Env
-from picker.store import resolve_db_url
+from picker.store import SCHEMA_VERSION, resolve_db_url
 from cli_helpers import DEMO_CSV, assert_user_error, file_hash, make_v1_store
 
 
@@ -232,5 +232,5 @@ def test_server_style_store_needs_explicit_upgrade(run, tmp_path):
     url = f"sqlite:///file:{path}?uri=true"  # not a plain file path: treated like a server database
     assert_user_error(run("--db", url, "stock", "list", db=False), "schema version 1", "stock upgrade --yes")
     r = run("--db", url, "stock", "upgrade", "--yes", db=False)
-    assert r.exit_code == 0 and "schema v2" in r.stdout
+    assert r.exit_code == 0 and f"schema v{SCHEMA_VERSION}" in r.stdout
     assert run("--db", url, "stock", "list", "--json", db=False).exit_code == 0

@@ -141,3 +141,63 @@ def test_file_that_is_not_a_database(tmp_path):
     path.write_text("just some notes\n" * 50)
     with pytest.raises(PickerError, match="cannot open store"):
         open_store(resolve_db_url(str(path)))
+
+
+def test_v2_store_is_upgraded_to_v3_with_catalog_and_order_tables(tmp_path, write_csv):
+    from picker.store.catalog import import_catalog, load_suppliers
+    from picker.store.migrate import create_fresh
+
+    path = tmp_path / "v2.sqlite"
+    engine = create_engine(f"sqlite:///{path}")
+    with engine.begin() as conn:
+        create_fresh(conn, target=2)
+        conn.execute(text("INSERT INTO parts (id, kind, value, qty, bin, note) VALUES (1, 'resistor', 4700, 3, 'R-A1', 'kept')"))
+        conn.execute(text(
+            "INSERT INTO ledger (part_id, delta, reason, created_at, user_name) VALUES (1, 3, 'v2 era', :w, 'ann')"
+        ), {"w": dt.datetime(2025, 5, 1)})  # fmt: skip
+    assert "suppliers" not in inspect(engine).get_table_names()
+    engine.dispose()
+    st = open_store(resolve_db_url(str(path)))
+    try:
+        assert st.upgraded_from == 2 and st.backup_path.name.startswith("v2.v2-backup-")
+        names = set(inspect(st.engine).get_table_names())
+        assert {"suppliers", "catalog_items", "price_breaks", "orders", "order_lines"} <= names
+        with st.Session.begin() as s:
+            part = get_part(s, 1)
+            assert (part.qty, part.note, part.ledger[0].user) == (3, "kept", "ann")
+            assert ledger_balance_ok(s) == []
+            import_catalog(s, write_csv("sku,kind,value,prices\nA,resistor,1k,1:0.05\n"), "Test Parts", 1.5)
+        with st.Session.begin() as s:
+            assert [(x.name, len(x.items)) for x in load_suppliers(s)] == [("Test Parts", 1)]
+    finally:
+        st.close()
+
+
+@pytest.mark.parametrize(
+    "sql",
+    [
+        "INSERT INTO suppliers (name, order_charge, imported_at) VALUES ('Neg', -1, '2025-01-01')",
+        "INSERT INTO suppliers (name, order_charge, imported_at) VALUES ('Test Parts', 0, '2025-01-01')",  # name unique
+        "INSERT INTO catalog_items (supplier_id, sku, kind, pack, min_order) VALUES (1, 'B', 'resistor', 0, 1)",
+        "INSERT INTO catalog_items (supplier_id, sku, kind, pack, min_order) VALUES (1, 'A', 'resistor', 1, 1)",  # sku
+        "INSERT INTO catalog_items (supplier_id, sku, kind, pack, min_order) VALUES (9, 'C', 'resistor', 1, 1)",  # FK
+        "INSERT INTO price_breaks (item_id, min_qty, unit_price) VALUES (1, 5, 0)",
+        "INSERT INTO orders (created_at, status, total_cost) VALUES ('2025-01-01', 'lost', 0)",
+        "INSERT INTO order_lines (order_id, supplier, sku, kind, packs, qty, cost) VALUES (1, 'S', 'A', 'resistor', 1, 0, 1)",
+    ],
+)
+def test_v3_constraints_are_enforced(store, sql):
+    with store.engine.connect() as conn:
+        conn.execute(text("INSERT INTO suppliers (id, name, order_charge, imported_at) VALUES (1, 'Test Parts', 0, '2025-01-01')"))
+        conn.execute(text("INSERT INTO catalog_items (id, supplier_id, sku, kind, pack, min_order) VALUES (1, 1, 'A', 'resistor', 1, 1)"))
+        conn.execute(text("INSERT INTO orders (id, created_at, status, total_cost) VALUES (1, '2025-01-01', 'incoming', 0)"))
+        with pytest.raises(exc.IntegrityError):
+            conn.execute(text(sql))
+
+
+def test_v3_tables_match_the_models_in_nullability(store):
+    got = _columns(store.engine)
+    for name in ("suppliers", "catalog_items", "price_breaks", "orders", "order_lines"):
+        table = Base.metadata.tables[name]
+        expected = {c.name: c.nullable for c in table.columns if not c.primary_key}
+        assert {c: n for c, n in got[name].items() if c in expected} == expected, name
