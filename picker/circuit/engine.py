@@ -95,10 +95,13 @@ def hybrid_at(dc: DcPoint, model: NpnModel, temp_c, scale=1.0) -> mna.Hybrid:
     )
 
 
-def loop_gain(mat: mna.Matrices, gm_s: np.ndarray, omega: np.ndarray) -> np.ndarray:
-    """Return ratio T(j omega) with respect to gm, shape of ``omega`` (n, K)."""
-    v = mna.responses(mat, omega)
-    return gm_s[:, None] * (v[..., mat.index["B"]] - v[..., mat.index["E"]])
+def loop_gain(mat: mna.Matrices, gm_s: np.ndarray, omega: np.ndarray,
+              rows: np.ndarray | None = None) -> np.ndarray:
+    """Return ratio T(j omega) with respect to gm, shape of ``omega`` (n, K); with
+    ``rows`` (indices into the batch) only those designs, ``omega`` then (len(rows), K)."""
+    v = mna.responses(mat, omega, rows=rows)
+    gm = gm_s if rows is None else gm_s[rows]
+    return gm[:, None] * (v[..., mat.index["B"]] - v[..., mat.index["E"]])
 
 
 def scan_grid(mat: mna.Matrices, omega0, span=3.0, points=48, fine=41):
@@ -167,16 +170,18 @@ class SmallSignal:
         return self.margin > 1.0
 
 
-def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, steps=16):
+def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, xtol=1e-12, max_steps=60):
     """Phase-zero frequency near a good guess, without the eigenvalue scan.
 
     A log grid of ``points`` over ``omega_guess`` / ``span`` .. * ``span``
-    brackets the zero of Im T with the largest Re T, and ``steps`` Illinois
-    (modified regula falsi) steps in log frequency refine it; about 26
-    solves per design against :func:`phase_zero`'s 130 plus an eigenvalue
-    problem.  For searches and Monte Carlo, where the tank's frequency is
-    already known to a few per cent.  Returns (omega, margin) like
-    :func:`phase_zero`.
+    brackets the zero of Im T with the largest Re T.  Anderson-Bjorck
+    (modified regula falsi) steps in log frequency on Im T / |T|^2, with a
+    bisection step whenever the bracket has not halved in six steps, refine it
+    until the step or the bracket is below ``xtol`` (relative frequency) or
+    regula falsi lands on an end; each row leaves the batch as it converges
+    (typically 5-10 steps; at most ``max_steps``).  For searches and Monte
+    Carlo, where the tank's frequency is already known to a few per cent.
+    Returns (omega, margin) like :func:`phase_zero`.
     """
     n = gm_s.shape[0]
     rows = np.arange(n)
@@ -190,24 +195,72 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, s
     score = np.where(cross, re_x, -np.inf)
     j = np.argmax(score, axis=1)
     found = np.isfinite(score[rows, j])
+    # Bracket ends in log frequency, T there, and the function refined: -Im(1/T) =
+    # Im T / |T|^2, which has the sign (so the bracket and the zero) of Im T but is
+    # near linear in frequency across a tank's resonance, where Im T is not; its
+    # values at the ends as the Illinois rule scales them.
     a, b = np.log(grid[rows, j]), np.log(grid[rows, j + 1])
-    fa, fb = im[rows, j], im[rows, j + 1]
-    for _ in range(steps):
+    ta, tb = t[rows, j], t[rows, j + 1]
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        fa, fb = _phase_fn(ta), _phase_fn(tb)
+    last = np.zeros(n, dtype=np.int8)  # end the previous step replaced: 1 = a, 2 = b, 0 = none
+    ref_width = np.abs(b - a)
+    since = np.zeros(n, dtype=np.int8)  # steps since the bracket last halved
+    act = np.flatnonzero(found & (fa != 0) & (fb != 0))
+    for _ in range(max_steps):
+        if act.size == 0:
+            break
+        a_, b_, fa_, fb_ = a[act], b[act], fa[act], fb[act]
+        lo, hi = np.minimum(a_, b_), np.maximum(a_, b_)
         with np.errstate(invalid="ignore", divide="ignore"):
-            c = np.where(found, (a * fb - b * fa) / (fb - fa), a)
-        c = np.clip(np.where(np.isfinite(c), c, 0.5 * (a + b)), np.minimum(a, b), np.maximum(a, b))
-        fc = loop_gain(mat, gm_s, np.exp(c)[:, None])[:, 0].imag
-        left = np.signbit(fc) == np.signbit(fa)
-        # Illinois: halve the stale end's value so that both ends move
-        fb = np.where(left, fb * 0.5, fb)
-        fa = np.where(left, fa, fa * 0.5)
-        a, fa = np.where(left, c, a), np.where(left, fc, fa)
-        b, fb = np.where(left, b, c), np.where(left, fb, fc)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        w = np.exp(np.where(np.abs(fa) < np.abs(fb), a, b))
-    tw = loop_gain(mat, gm_s, w[:, None])[:, 0]
-    found &= tw.real > 0
-    return np.where(found, w, np.nan), np.where(found, tw.real, 0.0)
+            c = (a_ * fb_ - b_ * fa_) / (fb_ - fa_)
+        # regula falsi lands on an end: that end is the zero to rounding; the row is done
+        done = (c == a_) | (c == b_)
+        if done.any():
+            keep = ~done
+            act, a_, b_, fa_, fb_, lo, hi, c = (x[keep] for x in (act, a_, b_, fa_, fb_, lo, hi, c))
+            if act.size == 0:
+                break
+        bisect = ~((c > lo) & (c < hi)) | (since[act] >= 6)
+        c = np.where(bisect, 0.5 * (a_ + b_), c)
+        tc = loop_gain(mat, gm_s, np.exp(c)[:, None], rows=act)[:, 0]
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+            fc = _phase_fn(tc)
+        ok = np.isfinite(fc)
+        left = np.signbit(fc) == np.signbit(fa_)  # c replaces a
+        # Anderson-Bjorck: when the same end is replaced twice running, scale the other
+        # end's value by 1 - f(c)/f(replaced end) (1/2 if that is not positive)
+        again = ~bisect & (last[act] == np.where(left, 1, 2))
+        with np.errstate(invalid="ignore", divide="ignore"):
+            scale = 1.0 - fc / np.where(left, fa_, fb_)
+        scale = np.where(again, np.where(scale > 0, scale, 0.5), 1.0)
+        fb_ = np.where(left, fb_ * scale, fb_)
+        fa_ = np.where(left, fa_, fa_ * scale)
+        upd_a, upd_b = ok & left, ok & ~left
+        moved = np.abs(c - np.where(left, a_, b_))  # how far the replaced end moved
+        a[act] = np.where(upd_a, c, a_)
+        fa[act] = np.where(upd_a, fc, fa_)
+        ta[act] = np.where(upd_a, tc, ta[act])
+        b[act] = np.where(upd_b, c, b_)
+        fb[act] = np.where(upd_b, fc, fb_)
+        tb[act] = np.where(upd_b, tc, tb[act])
+        last[act] = np.where(bisect, 0, np.where(left, 1, 2))
+        width = np.abs(b[act] - a[act])
+        halved = width <= 0.5 * ref_width[act]
+        ref_width[act] = np.where(halved, width, ref_width[act])
+        since[act] = np.where(halved | bisect, 0, since[act] + 1)
+        act = act[ok & (fc != 0) & (width > xtol) & (moved > xtol)]
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+        pick_a = np.abs(_phase_fn(ta)) < np.abs(_phase_fn(tb))
+    w = np.exp(np.where(pick_a, a, b))
+    m = np.where(pick_a, ta.real, tb.real)
+    found &= m > 0
+    return np.where(found, w, np.nan), np.where(found, m, 0.0)
+
+
+def _phase_fn(t: np.ndarray) -> np.ndarray:
+    """Im T / |T|^2 (= -Im 1/T): zero, and changing sign, where Im T does."""
+    return t.imag / (t.real * t.real + t.imag * t.imag)
 
 
 def small_signal(batch: DesignBatch, omega_guess: np.ndarray | None = None, span: float = 1.3) -> SmallSignal:
