@@ -194,6 +194,10 @@ class Junctions:
     ie_q: np.ndarray
     gm_q: np.ndarray
 
+    def take(self, rows) -> "Junctions":
+        return Junctions(self.log_is[rows], self.vt[rows], self.bf[rows], self.re1[rows],
+                         self.ie_q[rows], self.gm_q[rows])
+
 
 def junction_be(j: Junctions, a, vbe_dc):
     """Base-emitter junction (with any RE1 in series) driven by vbe_dc + a cos(theta).
@@ -219,16 +223,21 @@ def junction_be(j: Junctions, a, vbe_dc):
     return ln_f, f_1 / a_j / (j.ie_q / vt)
 
 
+def _bc(log_is, vt, gm_q, a_bc, vbc_dc):
+    """:func:`junction_bc` on bare arrays (any shapes that broadcast)."""
+    li0, ratio = _log_i0_i1(a_bc / vt)
+    ln_r = log_is + (vbc_dc + a_bc) / vt + li0
+    g = np.exp(np.minimum(ln_r, EXP_CAP)) * ratio / np.maximum(a_bc, 1e-12) / gm_q
+    return ln_r, g
+
+
 def junction_bc(j: Junctions, a_bc, vbc_dc):
     """Base-collector junction driven by vbc_dc + a_bc cos(theta) (closed form).
 
     Returns (ln_r, g): the log of its average forward current (A) and its
     fundamental conductance over gm at the quiescent point.
     """
-    li0, ratio = _log_i0_i1(a_bc / j.vt)
-    ln_r = j.log_is + (vbc_dc + a_bc) / j.vt + li0
-    g = np.exp(np.minimum(ln_r, EXP_CAP)) * ratio / np.maximum(a_bc, 1e-12) / j.gm_q
-    return ln_r, g
+    return _bc(j.log_is, j.vt, j.gm_q, a_bc, vbc_dc)
 
 
 def sigma_table(batch: DesignBatch, hy: mna.Hybrid, tf_s: np.ndarray, omega_ref: np.ndarray):
@@ -270,20 +279,42 @@ def sigma_table(batch: DesignBatch, hy: mna.Hybrid, tf_s: np.ndarray, omega_ref:
     return sig, np.nan_to_num(rho, nan=1.0, posinf=1e3)
 
 
+# Interpolation on the (R_GRID, G_GRID) tables.  The tables are read flat with
+# precomputed cell offsets; the arithmetic is the plain bilinear formula.
+_NR, _NG = R_GRID.size, G_GRID.size
+_R_IN, _G_IN = R_GRID[1:-1], G_GRID[1:-1]  # interior knots: searchsorted gives the cell directly
+_R_LO, _R_STEP = R_GRID[:-1], R_GRID[1:] - R_GRID[:-1]
+_G_LO, _G_STEP = G_GRID[:-1], G_GRID[1:] - G_GRID[:-1]
+
+
+def _r_part(rows: np.ndarray, r: np.ndarray):
+    """Cell offsets into the flat (n * R * G) table and weights along r, for table rows ``rows``."""
+    r = np.minimum(np.maximum(r, R_GRID[0]), R_GRID[-1])
+    i = _R_IN.searchsorted(r)
+    tr = (r - _R_LO[i]) / _R_STEP[i]
+    return rows * (_NR * _NG) + i * _NG, tr, 1 - tr
+
+
+def _g_part(g: np.ndarray):
+    """Cell offsets and weights along g."""
+    g = np.minimum(np.maximum(g, G_GRID[0]), G_GRID[-1])
+    k = _G_IN.searchsorted(g)
+    tg = (g - _G_LO[k]) / _G_STEP[k]
+    return k, tg, 1 - tg
+
+
+def _interp(flat: np.ndarray, rp, gp) -> np.ndarray:
+    """Bilinear interpolation of a flattened (n, R, G) table; the parts broadcast."""
+    base, tr, ur = rp
+    k, tg, ug = gp
+    c = base + k
+    return (ur * ug * flat.take(c) + tr * ug * flat.take(c + _NG) + ur * tg * flat.take(c + 1)
+            + tr * tg * flat.take(c + (_NG + 1)))
+
+
 def _bilinear(table: np.ndarray, r: np.ndarray, g: np.ndarray) -> np.ndarray:
     """Interpolate (n, R, G) tables at one (r, g) per design."""
-    # np.minimum/np.maximum rather than np.clip: the same numbers, a fraction of the
-    # per-call overhead (this runs some 10^5 times per batch of designs)
-    r = np.minimum(np.maximum(r, R_GRID[0]), R_GRID[-1])
-    g = np.minimum(np.maximum(g, G_GRID[0]), G_GRID[-1])
-    i = np.minimum(np.maximum(R_GRID.searchsorted(r) - 1, 0), R_GRID.size - 2)
-    k = np.minimum(np.maximum(G_GRID.searchsorted(g) - 1, 0), G_GRID.size - 2)
-    tr = (r - R_GRID[i]) / (R_GRID[i + 1] - R_GRID[i])
-    tg = (g - G_GRID[k]) / (G_GRID[k + 1] - G_GRID[k])
-    rows = np.arange(table.shape[0])
-    t00, t10 = table[rows, i, k], table[rows, i + 1, k]
-    t01, t11 = table[rows, i, k + 1], table[rows, i + 1, k + 1]
-    return (1 - tr) * (1 - tg) * t00 + tr * (1 - tg) * t10 + (1 - tr) * tg * t01 + tr * tg * t11
+    return _interp(table.reshape(-1), _r_part(np.arange(table.shape[0]), r), _g_part(g))
 
 
 @dataclass(frozen=True)
@@ -302,7 +333,11 @@ def _node_v(model: Model, v: np.ndarray, k: int, fixed: np.ndarray) -> np.ndarra
     return v[:, k] if k >= 0 else fixed
 
 
-def _device(mdl: Model, a, vbe, vbc, steps: int = 8):
+#: The B-C junction's switched-off conductance ratio, as a g part of the table interpolation.
+_G_OFF = _g_part(np.array(G_MIN))
+
+
+def _device(mdl: Model, a, vbe, vbc, steps: int = 8, rows=None):
     """Averaged transistor at amplitude ``a`` with a self-consistent base-collector swing.
 
     The B-C swing is rho * a, where the mode-shape ratio rho falls as the
@@ -310,58 +345,94 @@ def _device(mdl: Model, a, vbe, vbc, steps: int = 8):
     itself grows with the swing.  The fixed point g = G(rho(g) a) is found by
     bisection on log g (G - g is decreasing in g).
 
+    ``rows`` (default: every design) picks the model's design of each entry,
+    so one call can evaluate several trial states of the same designs.
     Returns (ln_f, r, ln_r, g); see :func:`junction_be` and :func:`junction_bc`.
     """
-    j = mdl.j
+    if rows is None:
+        rows, j = np.arange(a.shape[0]), mdl.j
+    else:
+        j = mdl.j.take(rows)
+    flat = mdl.rho.reshape(-1)
     ln_f, r = junction_be(j, a, vbe)
-    g_off = np.full_like(a, G_MIN)
-    ln_r, g = junction_bc(j, _bilinear(mdl.rho, r, g_off) * a, vbc)
+    rp = _r_part(rows, r)
+    ln_r, g = _bc(j.log_is, j.vt, j.gm_q, _interp(flat, rp, _G_OFF) * a, vbc)
     on = np.flatnonzero(g > G_MIN)  # rows whose B-C junction conducts: solve the fixed point
     if on.size and steps:
-        sub = _take_model(mdl, on)
-        lg = _bc_fixed_point(sub, r[on], a[on], vbc[on], steps)
-        ln_r, g = ln_r.copy(), g.copy()
-        ln_r[on], g[on] = junction_bc(sub.j, _bilinear(sub.rho, r[on], np.exp(lg)) * a[on], vbc[on])
+        rp_on = tuple(x[on] for x in rp)
+        cj = (j.log_is[on], j.vt[on], j.gm_q[on])
+        lg = _bc_fixed_point(flat, rp_on, cj, a[on], vbc[on], steps)
+        ln_r[on], g[on] = _bc(*cj, _interp(flat, rp_on, _g_part(np.exp(lg))) * a[on], vbc[on])
     return ln_f, r, ln_r, g
 
 
 #: Log-spaced trial values of g scanned for the first root of the B-C fixed point.
 G_SCAN = np.geomspace(1e-7, 100.0, 48)
+_LG_SCAN = np.log(G_SCAN)
+_SCAN_PART = _g_part(G_SCAN)
+#: Trial points (rows x midpoints) one bisection call of the B-C fixed point may evaluate:
+#: up to 4 bisection steps are taken per call of the junction law, fewer on large batches.
+_TREE_POINTS = 512
 
 
-def _bc_fixed_point(mdl: Model, r, a, vbc, steps: int) -> np.ndarray:
+def _dyadic(lo: np.ndarray, hi: np.ndarray, depth: int) -> np.ndarray:
+    """(n, 2**depth + 1) points from lo to hi, each the midpoint 0.5 (left + right) of its
+    parents, i.e. exactly the midpoints a bisection of that depth may visit."""
+    p = np.stack([lo, hi], axis=1)
+    for _ in range(depth):
+        q = np.empty((p.shape[0], 2 * p.shape[1] - 1))
+        q[:, 0::2] = p
+        q[:, 1::2] = 0.5 * (p[:, :-1] + p[:, 1:])
+        p = q
+    return p
+
+
+def _bc_fixed_point(flat: np.ndarray, rp, cj, a, vbc, steps: int) -> np.ndarray:
     """log g with g = G(rho(r, g) a), the smallest root (the one a growing swing meets first).
 
-    The root is bracketed on the ``G_SCAN`` grid (rho need not be monotone in
-    g, so there may be more than one), then refined by bisection and a Newton
-    polish, so that the result is a smooth function of its inputs.
+    ``rp`` is the r part of the rho-table interpolation (:func:`_r_part`) and
+    ``cj`` the junction constants (log IS, VT, gm_q) of each row.  The root is
+    bracketed on the ``G_SCAN`` grid (rho need not be monotone in g, so there
+    may be more than one), then refined by bisection and a Newton polish, so
+    that the result is a smooth function of its inputs.  The bisection
+    evaluates every midpoint it may visit in the next few steps at once, then
+    takes its steps on those values.
     """
-    j = mdl.j
     n = a.shape[0]
-
-    k = G_SCAN.size
-    lg_grid = np.log(G_SCAN)
-    rep = lambda x: np.repeat(x, k)  # noqa: E731
-    tab = np.repeat(mdl.rho, k, axis=0)
-    jj = Junctions(**{f: np.repeat(getattr(j, f), k) for f in Junctions.__dataclass_fields__})
-    scan = (np.log(np.maximum(junction_bc(jj, _bilinear(tab, rep(r), np.tile(G_SCAN, n)) * rep(a), rep(vbc))[1],
-                              1e-300)) - np.tile(lg_grid, n)).reshape(n, k)
-    down = (scan[:, :-1] > 0) & (scan[:, 1:] <= 0)
-    first = np.where(down.any(axis=1), np.argmax(down, axis=1), k - 2)
-    lo, hi = lg_grid[first], lg_grid[first + 1]
+    rp2 = tuple(x[:, None] for x in rp)  # everything below is (n, trials)
+    cj2 = tuple(x[:, None] for x in cj)
+    a2, vbc2 = a[:, None], vbc[:, None]
 
     def f(lg):
-        return np.log(np.maximum(junction_bc(j, _bilinear(mdl.rho, r, np.exp(lg)) * a, vbc)[1], 1e-300)) - lg
+        rho = _interp(flat, rp2, _g_part(np.exp(lg)))
+        return np.log(np.maximum(_bc(*cj2, rho * a2, vbc2)[1], 1e-300)) - lg
 
-    for _ in range(steps):
-        mid = 0.5 * (lo + hi)
-        up = f(mid) > 0
-        lo, hi = np.where(up, mid, lo), np.where(up, hi, mid)
+    k = G_SCAN.size
+    scan = np.log(np.maximum(_bc(*cj2, _interp(flat, rp2, _SCAN_PART) * a2, vbc2)[1], 1e-300)) - _LG_SCAN
+    down = (scan[:, :-1] > 0) & (scan[:, 1:] <= 0)
+    first = np.where(down.any(axis=1), np.argmax(down, axis=1), k - 2)
+    lo, hi = _LG_SCAN[first], _LG_SCAN[first + 1]
+
+    rows = np.arange(n)
+    left = steps
+    while left > 0:
+        depth = max(1, min(left, 4, int(np.log2(_TREE_POINTS / n + 1))))
+        left -= depth
+        m = 1 << depth
+        p = _dyadic(lo, hi, depth)
+        up = f(p[:, 1:-1]) > 0
+        at_lo, at_hi = np.zeros(n, dtype=np.intp), np.full(n, m, dtype=np.intp)
+        for _ in range(depth):
+            mid = (at_lo + at_hi) >> 1
+            u = up[rows, mid - 1]
+            at_lo, at_hi = np.where(u, mid, at_lo), np.where(u, at_hi, mid)
+        lo, hi = p[rows, at_lo], p[rows, at_hi]
     lg = 0.5 * (lo + hi)
     for _ in range(3):
-        f0 = f(lg)
-        d = (f(lg + 1e-6) - f0) / 1e-6
-        lg = np.clip(lg - f0 / np.where(d < -1e-12, d, -1e-12), lo - 1e-3, hi + 1e-3)
+        fx = f(np.stack([lg, lg + 1e-6], axis=1))
+        f0 = fx[:, 0]
+        d = (fx[:, 1] - f0) / 1e-6
+        lg = np.minimum(np.maximum(lg - f0 / np.where(d < -1e-12, d, -1e-12), lo - 1e-3), hi + 1e-3)
     return lg
 
 
@@ -415,6 +486,11 @@ def _fd_jacobian(f, y: np.ndarray, f0: np.ndarray, h: np.ndarray) -> np.ndarray:
     return jac
 
 
+#: Rows (designs x trial states) one call of the device model may hold before its per-row
+#: cost outweighs its fixed cost; sets how many backtracking trials are evaluated at once.
+_BATCH_ROWS = 128
+
+
 def balance(mdl: Model, u: np.ndarray, iterations: int = 30, start=None, with_state=False):
     """Node voltages where the bias network carries the average currents at amplitude e^u.
 
@@ -422,6 +498,12 @@ def balance(mdl: Model, u: np.ndarray, iterations: int = 30, start=None, with_st
     two device currents (forward emitter current, base-collector diode
     current); Newton runs on their logarithms, where the junction laws are
     nearly linear, with steps limited to LOG_STEP.
+
+    Each design's steps are its own (the device model is row by row), so
+    trial states are stacked into one call of the device model: the halvings
+    of a backtracking step are tried several at once, and while no row
+    backtracks the finite-difference neighbours of a trial point are
+    evaluated with it (the next Jacobian comes with an accepted step).
     """
     net = mdl.net
     n = u.shape[0]
@@ -435,37 +517,81 @@ def balance(mdl: Model, u: np.ndarray, iterations: int = 30, start=None, with_st
     def volts(lf, lr):
         return v0 + zf * np.exp(lf)[:, None] + zr * np.exp(lr)[:, None]
 
-    def resid(lf, lr):
-        v = volts(lf, lr)
-        vb = v[:, net.ib]
-        vc = _node_v(mdl, v, net.ic, mdl.vcc_v)
-        ln_f, _, ln_r, _ = _device(mdl, a, vb - v[:, net.ij], vb - vc)
+    # the node voltages the device sees, as (offset, per forward current, per diode current)
+    cols = [(v0[:, k], zf[:, k], zr[:, k]) for k in (net.ib, net.ij, net.ic) if k >= 0]
+    vcc = mdl.vcc_v
+
+    def resid(rows, lf, lr):
+        """Residuals at (lf, lr) for model rows ``rows``."""
+        ef, er = np.exp(lf), np.exp(lr)
+        vb, vj, *vc = (c0[rows] + cf[rows] * ef + cr[rows] * er for c0, cf, cr in cols)
+        vc = vc[0] if vc else vcc[rows]
+        ln_f, _, ln_r, _ = _device(mdl, a[rows], vb - vj, vb - vc, rows=rows)
         return ln_f - lf, ln_r - lr
 
+    h = 1e-6
+    jac = np.empty((4, n))  # a11, a21, a12, a22 (finite differences)
+    valid = np.zeros(n, dtype=bool)
+
+    def with_jacobian(rows, lf, lr, f1, f2):
+        """Residuals at (lf, lr) (``f1`` None: evaluate them too) and the Jacobian there."""
+        m = rows.size
+        if f1 is None:
+            r1, r2 = resid(np.concatenate([rows, rows, rows]), np.concatenate([lf, lf + h, lf]),
+                           np.concatenate([lr, lr, lr + h]))
+            f1, f2, r1, r2 = r1[:m], r2[:m], r1[m:], r2[m:]
+        else:
+            r1, r2 = resid(np.concatenate([rows, rows]), np.concatenate([lf + h, lf]), np.concatenate([lr, lr + h]))
+        jac[:, rows] = (r1[:m] - f1) / h, (r2[:m] - f2) / h, (r1[m:] - f1) / h, (r2[m:] - f2) / h
+        valid[rows] = True
+        return f1, f2
+
+    every = np.arange(n)
     lf, lr = (np.log(mdl.j.ie_q), np.full(n, -700.0)) if start is None else start
-    lr = np.clip(lr + resid(lf, lr)[1], -700.0, 5.0)  # the diode current the present voltages give
+    lr = np.clip(lr + resid(every, lf, lr)[1], -700.0, 5.0)  # the diode current the present voltages give
 
     def norm(f1, f2, lr_):
         return np.maximum(np.abs(f1), np.where(lr_ < -600, 0.0, np.abs(f2)))
 
-    h = 1e-6
-    f1, f2 = resid(lf, lr)
+    if iterations > 0:
+        f1, f2 = with_jacobian(every, lf, lr, None, None)
+    else:
+        f1, f2 = resid(every, lf, lr)
+    ahead = True  # evaluate the next Jacobian with the trial step
     for _ in range(iterations):
-        a11, a21 = (np.array(resid(lf + h, lr)) - (f1, f2)) / h
-        a12, a22 = (np.array(resid(lf, lr + h)) - (f1, f2)) / h
+        stale = np.flatnonzero(~valid)
+        if stale.size:
+            with_jacobian(stale, lf[stale], lr[stale], f1[stale], f2[stale])
+        a11, a21, a12, a22 = jac
         det = a11 * a22 - a12 * a21
         det = np.where(np.abs(det) < 1e-30, 1e-30, det)
         d1 = np.clip((-f1 * a22 + f2 * a12) / det, -LOG_STEP, LOG_STEP)
         d2 = np.clip((-a11 * f2 + a21 * f1) / det, -LOG_STEP_R, LOG_STEP_R)
         old = norm(f1, f2, lr)
         step = np.ones(n)
-        for _ in range(8):  # backtracking: halve the step where the residual grew
-            nf, nr = lf + step * d1, np.clip(lr + step * d2, -700.0, 5.0)
-            g1, g2 = resid(nf, nr)
-            worse = ~(norm(g1, g2, nr) <= old)
-            if not worse.any():
-                break
-            step = np.where(worse, step / 2, step)
+        nf, nr = lf + step * d1, np.clip(lr + step * d2, -700.0, 5.0)
+        valid[:] = False
+        if ahead:
+            g1, g2 = with_jacobian(every, nf, nr, None, None)
+        else:
+            g1, g2 = resid(every, nf, nr)
+        worse = np.flatnonzero(~(norm(g1, g2, nr) <= old))
+        ahead = worse.size == 0
+        valid[worse] = False
+        tries = 1
+        while worse.size and tries < 8:  # backtracking: halve the step where the residual grew
+            b = int(np.clip(_BATCH_ROWS // worse.size, 1, 8 - tries))
+            tries += b
+            sc = step[worse] / (2.0 ** np.arange(1, b + 1))[:, None]  # (b, rows): the next b halvings
+            tf = lf[worse] + sc * d1[worse]
+            tr = np.clip(lr[worse] + sc * d2[worse], -700.0, 5.0)
+            r1, r2 = (x.reshape(b, -1) for x in resid(np.tile(worse, b), tf.ravel(), tr.ravel()))
+            good = norm(r1, r2, tr) <= old[worse]
+            done = good.any(axis=0)
+            pick = np.where(done, np.argmax(good, axis=0), b - 1), np.arange(worse.size)
+            step[worse], nf[worse], nr[worse] = sc[pick], tf[pick], tr[pick]
+            g1[worse], g2[worse] = r1[pick], r2[pick]
+            worse = worse[~done]
         lf, lr, f1, f2 = nf, nr, g1, g2
         if np.all(norm(f1, f2, lr) < 1e-9):
             break
