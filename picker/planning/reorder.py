@@ -102,7 +102,8 @@ class Plan:
     n_options: int
     options_per_build: tuple  # count per target
     reasons: tuple  # one line per reason, when infeasible
-    stock_after: dict  # part_id -> qty left after every build
+    stock_after: dict  # part_id -> qty left after every build (lines the plan uses)
+    stock_used: tuple = ()  # (Source, units taken) per line the plan uses, source order
 
 
 def _attr(item: CatalogItem, name: str, fill=np.nan):
@@ -260,9 +261,10 @@ def plan(drawer: Drawer, suppliers: tuple, targets: list[Target], base: FindSpec
     for (_, _, s), u in sol.alloc.items():
         if s < n_stock:
             used[s] = used.get(s, 0) + u
-    after = {int(stock[s].part_id): int(stock[s].qty - u) for s, u in used.items()}
+    after = {int(stock[s].part_id): int(stock[s].qty - u) for s, u in sorted(used.items())}
     return Plan(sol.status, tuple(builds), sol.purchases, {names[j]: c for j, c in sol.charges_paid.items()},
-                sol.cost, sol.gap, len(options), tuple(per_build), (), after)
+                sol.cost, sol.gap, len(options), tuple(per_build), (), after,
+                tuple((stock[s], u) for s, u in sorted(used.items())))
 
 
 def _target_text(t: Target) -> str:

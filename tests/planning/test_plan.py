@@ -34,7 +34,7 @@ def verify(p: Problem, s) -> float:
         assert o.build == b
         for r, n in o.needs.items():
             got = sum(u for (bb, rr, src), u in s.alloc.items() if bb == b and rr == r)
-            assert got >= n, (b, r, got, n)
+            assert got == n, (b, r, got, n)  # exactly what the boards need, no unit set aside twice
     for (b, r, src), u in s.alloc.items():
         assert src in p.key_sources[r] and u > 0
     for line in range(p.n_stock):
@@ -58,6 +58,12 @@ def test_buying_nothing_is_optimal_when_stock_covers():
                 items=[item("a", [(1, 0.10)])], item_supplier=[0])
     s = solve(p)
     assert verify(p, s) == 0.0 and s.purchases == () and s.chosen == (0,)
+
+
+def test_a_key_is_served_from_the_fullest_bin_when_it_suffices():
+    p = problem([Option(0, {0: 6})], [(0, 1, 2)], on_hand=[7, 40, 6])
+    s = solve(p)
+    assert verify(p, s) == 0.0 and s.alloc == {(0, 0, 1): 6}
 
 
 def test_one_cheap_part_unlocks_the_build():
