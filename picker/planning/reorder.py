@@ -1,10 +1,12 @@
 """``reorder``: the cheapest purchase that lets every planned build meet its spec.
 
 1. A *virtual drawer* holds every line on hand (free, quantity not yet
-   binding) and every catalog item (its unit price at the quantity the build
-   needs).  ``find`` searches it per build, with the same engine, worst-case
-   rules and full check as a search of the drawer alone, and keeps the best
-   :data:`OPTIONS_PER_BUILD` designs per build as options.
+   binding) and every catalog item (what it costs per board when bought for
+   that build alone: packs, minimum and break included).  ``find`` searches it
+   per build, with the same engine, worst-case rules and full check as a
+   search of the drawer alone, ranking by that cost first
+   (:data:`REORDER_WEIGHTS`), and keeps the best :data:`OPTIONS_PER_BUILD`
+   designs per build as options.
 2. Each option's positions become *keys*: kind, value and the tolerance and
    ratings the design was checked with.  A key may be filled by any stock line
    or catalog item of that kind and value that is at least as tight and at
@@ -31,6 +33,9 @@ from picker.search.stock import DEFAULT_TOL, STABLE_DIELECTRICS, Lines
 
 #: Designs kept per build as options for the program.
 OPTIONS_PER_BUILD = 8
+#: Score weights of the searches: any design meeting the spec serves, so the searches rank
+#: by what a board costs to buy, frequency error and margin only breaking near-ties.
+REORDER_WEIGHTS = {"error": 0.2, "margin": 0.2, "cost": 1.0}
 #: Quantity given to every line of the virtual drawer (the program enforces the real ones).
 UNLIMITED = 10**6
 #: Relative closeness at which two values are the same value.
@@ -143,7 +148,7 @@ def virtual_drawer(sources: list[Source], boards: int) -> tuple[Drawer, dict]:
         idx = [k for k, s in enumerate(sources) if s.kind == kind]
         vid = np.array([k + 1 for k in idx], dtype=np.int64)  # ids are source index + 1
         src = [sources[k] for k in idx]
-        cost = np.array([0.0 if s.item is None else s.item.unit_price(s.item.order_qty(boards)) for s in src])
+        cost = np.array([0.0 if s.item is None else _per_board(s.item, boards) for s in src])
         lines[kind] = Lines(kind=kind, id=vid, value=np.array([s.value for s in src], dtype=float),
                             tol=np.array([s.tol for s in src], dtype=float), qty=np.full(len(src), UNLIMITED),
                             cost=cost, bin=np.array([s.bin if s.item is None else f"{s.item.supplier}:{s.item.sku}"
@@ -159,10 +164,16 @@ def virtual_drawer(sources: list[Source], boards: int) -> tuple[Drawer, dict]:
             continue
         seen.add(s.name.casefold())
         prof = s.profile
-        cost = 0.0 if s.item is None else s.item.unit_price(s.item.order_qty(boards))
+        cost = 0.0 if s.item is None else _per_board(s.item, boards)
         npns.append(Npn(prof, k + 1, UNLIMITED, cost, s.bin or f"{s.item.supplier}:{s.item.sku}"))
         ids[k + 1] = k
     return Drawer(lines, tuple(npns)), ids
+
+
+def _per_board(item: CatalogItem, boards: int) -> float:
+    """What one board's unit of ``item`` costs when bought for ``boards`` boards alone
+    (whole packs, the minimum order and the break reached), shared out over the boards."""
+    return item.cost(item.order_qty(boards)) / boards
 
 
 def _catalog_profile(it: CatalogItem) -> NpnProfile | None:
@@ -209,7 +220,8 @@ def plan(drawer: Drawer, suppliers: tuple, targets: list[Target], base: FindSpec
     options, metas, per_build, reasons = [], [], [], []
     for b, t in enumerate(targets):
         vd, ids = virtual_drawer(sources, t.boards)
-        spec = replace(base, freq_hz=t.freq_hz, tol=t.tol, boards=t.boards, top=OPTIONS_PER_BUILD, mc=0)
+        spec = replace(base, freq_hz=t.freq_hz, tol=t.tol, boards=t.boards, top=OPTIONS_PER_BUILD, mc=0,
+                       weights=dict(REORDER_WEIGHTS))
         found = find(vd, spec, progress=lambda what, frac, b=b: tick(f"build {b + 1}: {what}",
                                                                       (b + frac) / (len(targets) + 1)))
         if not found.candidates:
