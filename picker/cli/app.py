@@ -16,13 +16,13 @@ import typer
 from sqlalchemy import exc as sa_exc
 from typer.core import TyperGroup
 
-from picker.cli import catalog, check, demo, find, reorder, stock
+from picker.cli import build, catalog, check, demo, find, picklist, reorder, stock
 from picker.cli.env import Env, get_env
 from picker.cli.output import print_error
 from picker.errors import PickerError
 
 #: Command-group modules, each with ``register(parent)``.  New groups go here.
-COMMAND_MODULES = (stock, catalog, demo, check, find, reorder)
+COMMAND_MODULES = (stock, catalog, demo, check, find, reorder, build, picklist)
 
 
 class PickerGroup(TyperGroup):

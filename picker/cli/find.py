@@ -15,10 +15,11 @@ from picker.circuit.device import NpnProfile
 from picker.circuit.topology import topology_names
 from picker.cli.check import _min_margin, _option_quantity, _profile, parse_temps
 from picker.cli.env import Env, get_env
-from picker.cli.output import print_json, print_message
+from picker.cli.output import _clean, print_json, print_message, print_note
 from picker.errors import PickerError
 from picker.search.find import Drawer, FindSpec, Npn, find
 from picker.search.stock import Lines
+from picker.store.builds import reserved_qty
 from picker.store.engine import display_url
 from picker.store.models import Part
 from picker.store.pool import load_pool
@@ -29,11 +30,63 @@ WEIGHT_KEYS = ("error", "margin", "cost")
 
 
 def load_drawer(session: Session) -> Drawer:
-    """The store's stock as the search's arrays (parts with qty > 0)."""
-    lines = {k: Lines.from_frame(k, load_pool(session, k)) for k in ("resistor", "capacitor", "inductor")}
-    npns = tuple(Npn(_profile(p), p.id, p.qty, float(p.unit_cost or 0.0), p.bin)
-                 for p in session.scalars(select(Part).where(Part.kind == "npn", Part.qty > 0).order_by(Part.id)))
+    """The store's available stock as the search's arrays: each part's qty minus what reserved
+    builds hold (``picker.store.builds.reserved_qty``), parts with nothing available left out."""
+    held = reserved_qty(session)
+    lines = {}
+    for k in ("resistor", "capacitor", "inductor"):
+        df = load_pool(session, k)
+        if held and len(df):
+            df["qty"] = df["qty"].to_numpy() - df["id"].map(held).fillna(0).to_numpy(dtype=np.int64)
+            df = df[df["qty"] > 0].reset_index(drop=True)
+        lines[k] = Lines.from_frame(k, df)
+    npns = tuple(Npn(_profile(p), p.id, p.qty - held.get(p.id, 0), float(p.unit_cost or 0.0), p.bin)
+                 for p in session.scalars(select(Part).where(Part.kind == "npn", Part.qty > 0).order_by(Part.id))
+                 if p.qty - held.get(p.id, 0) > 0)
     return Drawer(lines, npns)
+
+
+def last_find_designs(spec: FindSpec, candidates) -> list[dict]:
+    """Saved-design dicts (``picker.builds.model``) of the candidates, in rank order, for the last find."""
+    from picker.builds.model import design_to_json
+
+    out = []
+    for c in candidates:
+        parts = {}
+        for ref, p in c.parts.items():
+            if p.get("part_id") is None:
+                continue
+            entry = {"part_id": int(p["part_id"])}
+            if p.get("part2_id") is not None:
+                entry.update(part2_id=int(p["part2_id"]), how=p["how"])
+            parts[ref] = entry
+        out.append(design_to_json(c.design, parts=parts, target={"freq_hz": spec.freq_hz, "tol": spec.tol,
+                                                                  "min_margin": spec.min_margin},
+                                  predicted={"freq_hz": c.freq_hz, "margin": c.margin,
+                                             "margin_worst": c.margin_worst, "yield": c.yield_},
+                                  temps_c=tuple(spec.temps_c)))
+    return out
+
+
+def save_find(env: Env, store, spec: FindSpec, result) -> None:
+    """Keep a successful search as the store's last find (for ``picker build new --from-find``).
+
+    A store that cannot be written (read-only file, locked too long) only costs a note."""
+    from dataclasses import asdict
+
+    from sqlalchemy import exc as sa_exc
+
+    from picker.store.builds import save_last_find
+
+    if not result.candidates:
+        return
+    designs = _clean(last_find_designs(spec, result.candidates))
+    try:
+        with store.Session.begin() as session:
+            save_last_find(session, _clean(asdict(spec)), designs)
+    except sa_exc.OperationalError as e:
+        print_note(env, f"could not save this search as the last find ({str(e.orig or e).strip()}); "
+                        "'picker build new --from-find' will not see it")
 
 
 def parse_tol(text: str) -> float:
@@ -127,6 +180,7 @@ def find_command(
         names = sorted({n.profile.name for n in drawer.npns})
         raise PickerError(f"--npn {spec.npn}: no npn of that name on hand (accepted: {', '.join(names + ['any'])})")
     result = run_find(env, drawer, spec, show_progress=not as_json)
+    save_find(env, store, spec, result)
     if as_json:
         print_json(env, [c.as_json() for c in result.candidates])
         for r in result.reasons if not result.candidates else ():

@@ -27,7 +27,7 @@ from sqlalchemy import (
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
 #: Schema version this code reads and writes; the highest migration in db/migrations.
-SCHEMA_VERSION = 3
+SCHEMA_VERSION = 4
 
 
 class UTCDateTime(TypeDecorator):
@@ -257,3 +257,83 @@ class OrderLine(Base):
     part_id: Mapped[int | None] = mapped_column(ForeignKey("parts.id"))  # set when received
 
     order: Mapped[Order] = relationship(back_populates="lines")
+
+
+# ---- v4: build jobs and the last find (db/migrations/0004_builds.py) --------------------
+
+_BUILD_STATUSES = ("reserved", "done", "cancelled", "undone")  # picker.builds.model.STATUSES
+
+
+class BuildRow(Base):
+    """A build job: ``reserved`` (its lines hold stock) until ``done`` (consumed), ``cancelled`` or ``undone``.
+
+    ``design`` is the saved-design JSON text (``picker.builds.model``) the build was made from.
+    """
+
+    __tablename__ = "builds"
+    __table_args__ = (
+        CheckConstraint("boards >= 1", name="ck_builds_boards"),
+        CheckConstraint("status IN (" + ", ".join(f"'{s}'" for s in _BUILD_STATUSES) + ")", name="ck_builds_status"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    name: Mapped[str] = mapped_column(String(200))
+    boards: Mapped[int] = mapped_column(Integer)
+    status: Mapped[str] = mapped_column(String(16))
+    design: Mapped[str] = mapped_column(Text)
+    created_at: Mapped[dt.datetime] = mapped_column(UTCDateTime)
+    done_at: Mapped[dt.datetime | None] = mapped_column(UTCDateTime)
+    user: Mapped[str | None] = mapped_column("user_name", String(64))  # as the ledger
+
+    lines: Mapped[list[BuildLineRow]] = relationship(back_populates="build", order_by="BuildLineRow.id")
+
+
+class BuildLineRow(Base):
+    """One stock line a build takes: every designator it fills and the quantity for all boards."""
+
+    __tablename__ = "build_lines"
+    __table_args__ = (
+        UniqueConstraint("build_id", "part_id", name="uq_build_lines_part"),
+        CheckConstraint("qty >= 1", name="ck_build_lines_qty"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    build_id: Mapped[int] = mapped_column(ForeignKey("builds.id"), index=True)
+    part_id: Mapped[int] = mapped_column(ForeignKey("parts.id"), index=True)
+    designators: Mapped[str] = mapped_column(Text)  # comma-separated, in design order
+    qty: Mapped[int] = mapped_column(Integer)
+
+    build: Mapped[BuildRow] = relationship(back_populates="lines")
+    part: Mapped[Part] = relationship()
+
+
+class LastFind(Base):
+    """The latest ``picker find`` that found something (only one is kept)."""
+
+    __tablename__ = "last_finds"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    created_at: Mapped[dt.datetime] = mapped_column(UTCDateTime)
+    user: Mapped[str | None] = mapped_column("user_name", String(64))
+    spec: Mapped[str] = mapped_column(Text)  # JSON of the FindSpec
+
+    candidates: Mapped[list[LastFindCandidate]] = relationship(
+        back_populates="find", order_by="LastFindCandidate.rank", cascade="all, delete-orphan"
+    )
+
+
+class LastFindCandidate(Base):
+    """One ranked candidate of the last find, as saved-design JSON text (with parts and predicted figures)."""
+
+    __tablename__ = "last_find_candidates"
+    __table_args__ = (
+        UniqueConstraint("find_id", "rank", name="uq_last_find_candidates_rank"),
+        CheckConstraint("rank >= 1", name="ck_last_find_candidates_rank"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    find_id: Mapped[int] = mapped_column(ForeignKey("last_finds.id"), index=True)
+    rank: Mapped[int] = mapped_column(Integer)
+    design: Mapped[str] = mapped_column(Text)
+
+    find: Mapped[LastFind] = relationship(back_populates="candidates")

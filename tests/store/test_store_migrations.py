@@ -201,3 +201,78 @@ def test_v3_tables_match_the_models_in_nullability(store):
         table = Base.metadata.tables[name]
         expected = {c.name: c.nullable for c in table.columns if not c.primary_key}
         assert {c: n for c, n in got[name].items() if c in expected} == expected, name
+
+
+def test_v3_store_is_upgraded_to_v4_with_build_and_last_find_tables(tmp_path):
+    from picker.store.builds import list_builds, reserved_qty
+    from picker.store.migrate import create_fresh
+
+    path = tmp_path / "v3.sqlite"
+    engine = create_engine(f"sqlite:///{path}")
+    with engine.begin() as conn:
+        create_fresh(conn, target=3)
+        conn.execute(text("INSERT INTO parts (id, kind, value, qty, bin) VALUES (1, 'resistor', 4700, 3, 'R-A1')"))
+        conn.execute(text(
+            "INSERT INTO ledger (part_id, delta, reason, created_at, user_name) VALUES (1, 3, 'v3 era', :w, 'ann')"
+        ), {"w": dt.datetime(2026, 1, 1)})  # fmt: skip
+        conn.execute(text("INSERT INTO orders (id, created_at, status, total_cost) VALUES (1, '2026-01-01', 'incoming', 2.5)"))
+    assert "builds" not in inspect(engine).get_table_names()
+    engine.dispose()
+    st = open_store(resolve_db_url(str(path)))
+    try:
+        assert st.upgraded_from == 3 and st.backup_path.name.startswith("v3.v3-backup-")
+        names = set(inspect(st.engine).get_table_names())
+        assert {"builds", "build_lines", "last_finds", "last_find_candidates"} <= names
+        with st.Session.begin() as s:
+            part = get_part(s, 1)
+            assert (part.qty, part.ledger[0].user) == (3, "ann")
+            assert ledger_balance_ok(s) == []
+            assert list_builds(s) == [] and reserved_qty(s) == {}
+            assert s.execute(text("SELECT total_cost FROM orders")).scalar_one() == 2.5
+    finally:
+        st.close()
+
+
+@pytest.mark.parametrize(
+    "sql",
+    [
+        "INSERT INTO builds (name, boards, status, design, created_at) VALUES ('b', 1, 'lost', '{}', '2026-01-01')",
+        "INSERT INTO builds (name, boards, status, design, created_at) VALUES ('b', 0, 'reserved', '{}', '2026-01-01')",
+        "INSERT INTO builds (name, boards, status, created_at) VALUES ('b', 1, 'reserved', '2026-01-01')",  # no design
+        "INSERT INTO build_lines (build_id, part_id, designators, qty) VALUES (1, 1, 'R2', 0)",
+        "INSERT INTO build_lines (build_id, part_id, designators, qty) VALUES (1, 1, 'R2', 1)",  # part twice
+        "INSERT INTO build_lines (build_id, part_id, designators, qty) VALUES (9, 1, 'R1', 1)",  # FK build
+        "INSERT INTO build_lines (build_id, part_id, designators, qty) VALUES (1, 9, 'R1', 1)",  # FK part
+        "INSERT INTO last_find_candidates (find_id, rank, design) VALUES (1, 1, '{}')",  # rank unique
+        "INSERT INTO last_find_candidates (find_id, rank, design) VALUES (1, 0, '{}')",
+        "INSERT INTO last_find_candidates (find_id, rank, design) VALUES (9, 2, '{}')",  # FK find
+    ],
+)
+def test_v4_constraints_are_enforced(store, sql):
+    with store.engine.connect() as conn:
+        conn.execute(text("INSERT INTO parts (id, kind, value, qty, bin) VALUES (1, 'resistor', 1000, 5, 'R-A1')"))
+        conn.execute(text("INSERT INTO builds (id, name, boards, status, design, created_at) "
+                          "VALUES (1, 'b', 1, 'reserved', '{}', '2026-01-01')"))
+        conn.execute(text("INSERT INTO build_lines (build_id, part_id, designators, qty) VALUES (1, 1, 'R1', 1)"))
+        conn.execute(text("INSERT INTO last_finds (id, created_at, spec) VALUES (1, '2026-01-01', '{}')"))
+        conn.execute(text("INSERT INTO last_find_candidates (find_id, rank, design) VALUES (1, 1, '{}')"))
+        with pytest.raises(exc.IntegrityError):
+            conn.execute(text(sql))
+
+
+def test_v4_tables_match_the_models_in_nullability(store):
+    got = _columns(store.engine)
+    for name in ("builds", "build_lines", "last_finds", "last_find_candidates"):
+        table = Base.metadata.tables[name]
+        expected = {c.name: c.nullable for c in table.columns if not c.primary_key}
+        assert {c: n for c, n in got[name].items() if c in expected} == expected, name
+
+
+def test_v4_status_check_matches_the_build_statuses(store):
+    from picker.builds.model import STATUSES
+
+    with store.engine.connect() as conn:
+        for k, status in enumerate(STATUSES, 1):
+            conn.execute(text("INSERT INTO builds (id, name, boards, status, design, created_at) "
+                              "VALUES (:i, 'b', 1, :s, '{}', '2026-01-01')"), {"i": k, "s": status})
+        assert conn.execute(text("SELECT COUNT(*) FROM builds")).scalar_one() == len(STATUSES)

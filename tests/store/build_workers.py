@@ -1,0 +1,83 @@
+"""Worker processes for tests/store/test_build_concurrency.py (a plain module so ``spawn`` can import it).
+
+A worker opens the store at a URL (a SQLite file now; a server URL works the same
+way) and runs random build operations, each in its own transaction, the way
+separate ``picker build`` commands would.  It reports what it saw; the test
+compares that with the store afterwards.
+"""
+
+from __future__ import annotations
+
+import random
+import re
+
+from sqlalchemy import select
+
+from picker.errors import PickerError
+from picker.store import open_store
+from picker.store.builds import (
+    ShortageError,
+    cancel_build,
+    done_build,
+    list_builds,
+    new_build,
+    reserved_qty,
+    undo_build,
+)
+from picker.store.models import Part
+
+# "... needs 6, 5 available (7 on hand, 2 reserved by other builds): short by 1"
+SHORT_RE = re.compile(r"needs (\d+), (\d+) available \((\d+) on hand, (\d+) reserved by other builds\): short by (\d+)")
+STATUS_RE = re.compile(r"^build \d+ \(.*\) is (reserved|done|cancelled|undone): only a (reserved|done) build can be")
+
+
+def over_reserved(session) -> list[str]:
+    """Parts whose reserved total exceeds the quantity on hand (should be none)."""
+    held = reserved_qty(session)
+    parts = session.scalars(select(Part).where(Part.id.in_(list(held))))
+    return [f"part {p.id}: {held[p.id]} reserved, {p.qty} on hand" for p in parts if held[p.id] > p.qty]
+
+
+def worker(url: str, seed: int, n_ops: int, design: dict, name: str) -> dict:
+    """Run ``n_ops`` random operations (reserve, cancel, done, undo) and return what happened.
+
+    The target of cancel/done/undo is chosen in one transaction and acted on in the
+    next, so another process may get there first: the loser must be refused with
+    the build's status, never half-done.
+    """
+    rng = random.Random(seed)
+    store = open_store(url, create=False)
+    log = {"name": name, "reserve_tries": 0, "created": [], "shortages": [], "cancelled": [], "done": [],
+           "undone": [], "refused_status": 0, "other_errors": [], "over_reserved": []}
+    try:
+        for k in range(n_ops):
+            op = rng.choices(("reserve", "cancel", "done", "undo"), weights=(5, 1, 2, 1))[0]
+            if op == "reserve":
+                log["reserve_tries"] += 1
+                try:
+                    with store.Session.begin() as s:
+                        rec = new_build(s, design, rng.randint(1, 3), f"{name} op {k}", user=name)
+                    log["created"].append(rec.id)
+                except ShortageError as e:
+                    log["shortages"].append([list(map(int, m)) for m in SHORT_RE.findall(str(e))])
+            else:
+                want = {"cancel": "reserved", "done": "reserved", "undo": "done"}[op]
+                with store.Session.begin() as s:
+                    ids = [b.id for b in list_builds(s, want)]
+                if ids:
+                    target = rng.choice(ids)
+                    fn = {"cancel": cancel_build, "done": done_build, "undo": undo_build}[op]
+                    try:
+                        with store.Session.begin() as s:
+                            fn(s, target)
+                        log[{"cancel": "cancelled", "done": "done", "undo": "undone"}[op]].append(target)
+                    except PickerError as e:
+                        if STATUS_RE.match(str(e)):
+                            log["refused_status"] += 1
+                        else:
+                            log["other_errors"].append(str(e))
+            with store.Session.begin() as s:
+                log["over_reserved"] += over_reserved(s)
+    finally:
+        store.close()
+    return log
