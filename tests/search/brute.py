@@ -1,27 +1,45 @@
-"""A straightforward brute-force reference for ``find``'s ranking (common-emitter Colpitts).
+"""A straightforward brute-force reference for ``find``'s ranking (common-emitter
+Colpitts, Clapp and Hartley).
 
-It forms the full product of every stocked line at every position (L1, C1, C2,
-R1, R2, RE, RE1 or none, RC), keeps the designs that meet the stated design
-rules (the rules that define a result, not the search's screens), fills the
-coupling and bypass positions by their stated rule, runs the engine on every
-survivor with the global phase-zero search (no frequency guess, no window),
-derives the worst-case margin over hFE, temperature and part tolerances, and
-ranks by the score.  Nothing of the search's decomposition is used: no
-screen frequency, no hand-gain screen, no binary search, no buckets.
+Per topology it forms the full product of every stocked line at every tank
+and bias position (common-emitter Colpitts: L1, C1, C2; Clapp: L1, C1, C2,
+C3; Hartley: L1, L2, C1; then R1, R2, RE, RE1 or none, RC), keeps the designs
+that meet the stated design rules (the rules that define a result, not the
+search's screens), fills the coupling and bypass positions by their stated
+rule, runs the engine on every survivor with the global phase-zero search (no
+frequency guess, no window), derives the worst-case margin over hFE,
+temperature and part tolerances, and ranks by the score.  Nothing of the
+search's decomposition is used: no screen frequency window, no hand-gain
+screen, no binary search, no buckets.  (The tank rules involve only tank
+positions and the bias rules only bias positions, so the product is formed as
+the tank product's survivors times the bias product's survivors: the same
+designs as filtering the whole product, without holding it in memory.)
 
-The rules re-stated here (and in the README under "What find returns"):
+The rules re-stated here (the common ones also in the README under "What counts as
+a result", which does not yet state the Clapp and Hartley tank rules):
 
-* tank capacitors of a stable dielectric; feedback C1/C2 inside
-  ``space.FEEDBACK_CE``;
+* tank capacitors of a stable dielectric;
+* common-emitter Colpitts: feedback C1/C2 inside ``space.FEEDBACK_CE``;
+* Clapp: feedback C1/C2 inside ``space.FEEDBACK_CE`` and the series capacitor
+  C3 at most ``space.CLAPP_C3_FRACTION`` x min(C1, C2) (nominal values);
+* Hartley: two separate coils L1 (collector side) and L2 (base side), K = 0,
+  feedback L2/L1 inside ``space.FEEDBACK_CE``; each coil's own DCR;
 * divider: VB between VBE + 0.3 V and 70 % of the supply, divider current at
   most the top of the current window, RTh/(hFE_min + 1) <= 0.1 (RE + RE1);
 * emitter current (hand method at hFE_min) inside the window; RE1 none or an
   on-hand value of 10 ohm..1 kohm and not above RE; VCE at DC >= 1.5 V;
-* coupling and bypass: the smallest on-hand capacitor (rated for the supply)
-  whose reactance at the target is at most half the coupling fraction of the
+* coupling and bypass (CC1 feeds the collector, CC2 the base, CE the
+  emitter): the smallest on-hand capacitor (rated for the supply) whose
+  reactance at the target is at most half the coupling fraction of the
   impedance it feeds (hand figures);
 * the loop frequency pulled at most ``space.FREQ_SLACK`` from the tank's own
-  resonance (strays and transistor capacitance included);
+  resonance, with the strays (``style_stray_f`` per node) and the transistor's
+  capacitance (``space.DeviceCaps.estimate`` at the middle of the current
+  window: Cmu on the collector side, Cpi + Cmu on the base side) included:
+  Colpitts L1 with C1 + stray + Cmu in series with C2 + stray + Cpi + Cmu;
+  Clapp the same with C3 + stray also in series; Hartley L1 + L2 with C1 plus
+  the two end capacitances (stray + Cmu and stray + Cpi + Cmu) in series
+  across it;
 * frequency within tolerance, nominal margin and tolerance-derated worst-case
   margin at least ``min_margin``, transistor not saturated.
 
@@ -29,6 +47,8 @@ Slow on purpose; used by tests/search/test_exact.py and bench/find.py.
 """
 
 from __future__ import annotations
+
+from types import SimpleNamespace
 
 import numpy as np
 
@@ -40,105 +60,163 @@ from picker.circuit.topology import get_topology
 from picker.search import space
 from picker.search.stock import STABLE_DIELECTRICS
 
-TANK = ("L1", "C1", "C2")
+#: Tank positions per topology (a designator starting with L is an inductor, with C a capacitor).
+TANKS = {"colpitts-ce": ("L1", "C1", "C2"), "clapp": ("L1", "C1", "C2", "C3"), "hartley": ("L1", "L2", "C1")}
 BIAS = ("R1", "R2", "RE", "RE1", "RC")
+COUPLING = ("CC1", "CC2", "CE")
+#: Capacitor positions per topology outside the tank (coupling and bypass), for space_size.
+_NON_TANK_CAPS = len(COUPLING)
+#: Designs per engine call (memory only; the results do not depend on it).
+ENGINE_CHUNK = 20_000
 
 
 def _usable(lines, boards):
     return np.flatnonzero(lines.qty >= boards)
 
 
+def _topologies(spec):
+    missing = [t for t in spec.topologies if t not in TANKS]
+    if missing:
+        raise ValueError(f"no brute-force reference for {', '.join(missing)} (covered: {', '.join(TANKS)})")
+    return tuple(spec.topologies)
+
+
 def space_size(drawer, spec) -> int:
     """Designs in the full product of positions (every line at every position, coupling
-    and bypass included), per transistor line, common-emitter Colpitts."""
+    and bypass included), per transistor line, summed over the spec's topologies."""
     n = {k: int(_usable(drawer.lines[k], spec.boards).size) for k in ("resistor", "capacitor", "inductor")}
     npn = sum(1 for q in drawer.npns if q.qty >= spec.boards)
-    return n["inductor"] * n["capacitor"] ** 5 * n["resistor"] ** 4 * (n["resistor"] + 1) * npn
+    total = 0
+    for t in _topologies(spec):
+        tank = TANKS[t]
+        nl = sum(r.startswith("L") for r in tank)
+        nc = sum(r.startswith("C") for r in tank) + _NON_TANK_CAPS
+        total += n["inductor"] ** nl * n["capacitor"] ** nc * n["resistor"] ** 4 * (n["resistor"] + 1)
+    return total * npn
 
 
 def brute_force(drawer, spec) -> list[dict]:
-    """Every result by score (best first), one per tank and transistor line:
-    dicts with ``score, parts, values, freq_hz, margin, worst, evaluated``."""
+    """Every result by score (best first), one per tank, topology and transistor line:
+    dicts with ``score, parts, topology, npn, values, freq_hz, margin, worst``."""
     out = []
-    for npn in drawer.npns:
-        if npn.qty < spec.boards or (spec.npn and npn.profile.name.casefold() != spec.npn.casefold()):
-            continue
-        out.extend(_one_npn(drawer, spec, npn))
+    for topology in _topologies(spec):
+        for npn in drawer.npns:
+            if npn.qty < spec.boards or (spec.npn and npn.profile.name.casefold() != spec.npn.casefold()):
+                continue
+            out.extend(_one(drawer, spec, npn, topology))
     out.sort(key=lambda d: (d["score"], d["parts"]))
     return out
 
 
-def _one_npn(drawer, spec, npn):
-    p = npn.profile
-    R, C, L = drawer.lines["resistor"], drawer.lines["capacitor"], drawer.lines["inductor"]
-    ir, ic, il = (_usable(x, spec.boards) for x in (R, C, L))
+def _tank_product(drawer, spec, topology):
+    """Every tank of stocked lines (line indices per position) meeting the tank rules."""
+    C, L = drawer.lines["capacitor"], drawer.lines["inductor"]
+    ic, il = _usable(C, spec.boards), _usable(L, spec.boards)
     ic_tank = ic[np.isin(C.dielectric[ic].astype(str), STABLE_DIELECTRICS)]
+    tank = TANKS[topology]
+    grids = np.meshgrid(*[il if r.startswith("L") else ic_tank for r in tank], indexing="ij")
+    g = dict(zip(tank, (a.ravel() for a in grids)))
+    v = {r: (L if r.startswith("L") else C).value[g[r]] for r in tank}
+    lo, hi = space.FEEDBACK_CE
+    if topology == "hartley":
+        fb = v["L2"] / v["L1"]
+        ok = (fb >= lo) & (fb <= hi)
+    else:
+        fb = v["C1"] / v["C2"]
+        ok = (fb >= lo) & (fb <= hi)
+        if topology == "clapp":
+            ok &= v["C3"] <= space.CLAPP_C3_FRACTION * np.minimum(v["C1"], v["C2"])
+    return {r: a[ok] for r, a in g.items()}
+
+
+def _tank_resonance_hz(topology, v, stray_f, caps):
+    """The tank's own resonance, strays and transistor capacitance included (see the docstring)."""
+    coll, base = stray_f + caps.cmu_f, stray_f + caps.cpi_f + caps.cmu_f
+    if topology == "hartley":
+        c = v["C1"] + coll * base / (coll + base)
+        return 1.0 / (2 * np.pi * np.sqrt((v["L1"] + v["L2"]) * c))
+    inv = 1.0 / (v["C1"] + coll) + 1.0 / (v["C2"] + base)
+    if topology == "clapp":
+        inv = inv + 1.0 / (v["C3"] + stray_f)
+    return 1.0 / (2 * np.pi * np.sqrt(v["L1"] / inv))
+
+
+def _one(drawer, spec, npn, topology):
+    p = npn.profile
+    tank = TANKS[topology]
+    R, C, L = drawer.lines["resistor"], drawer.lines["capacitor"], drawer.lines["inductor"]
+    ir, ic = _usable(R, spec.boards), _usable(C, spec.boards)
+    # the bias product and its rules
     re1_opts = np.concatenate([[-1], ir[(R.value[ir] >= 10.0) & (R.value[ir] <= 1e3)]])
-    # full product of the tank and bias positions (line indices; -1 = no RE1)
-    grids = np.meshgrid(il, ic_tank, ic_tank, ir, ir, ir, re1_opts, ir, indexing="ij")
-    g = dict(zip(TANK + BIAS, (a.ravel() for a in grids)))
-    v = {r: (L if r == "L1" else C).value[g[r]] for r in TANK}
-    for r in BIAS:
-        v[r] = np.where(g[r] >= 0, R.value[np.maximum(g[r], 0)], 0.0)
+    grids = np.meshgrid(ir, ir, ir, re1_opts, ir, indexing="ij")
+    gb = dict(zip(BIAS, (a.ravel() for a in grids)))
+    vb_ = {r: np.where(gb[r] >= 0, R.value[np.maximum(gb[r], 0)], 0.0) for r in BIAS}
     beta, vcc = p.hfe_min, spec.vcc_v
-    vb = vcc * v["R2"] / (v["R1"] + v["R2"])
-    rth = v["R1"] * v["R2"] / (v["R1"] + v["R2"])
-    ie = (vb - p.vbe_v) / (v["RE"] + v["RE1"] + rth / (beta + 1))
-    vce = vcc - ie * beta / (beta + 1) * v["RC"] - ie * (v["RE"] + v["RE1"])
-    fb = v["C1"] / v["C2"]
-    ok = ((fb >= space.FEEDBACK_CE[0]) & (fb <= space.FEEDBACK_CE[1])
-          & (vb >= p.vbe_v + 0.3) & (vb <= 0.7 * vcc) & (vcc / (v["R1"] + v["R2"]) <= spec.ie_a[1])
-          & (ie >= spec.ie_a[0]) & (ie <= spec.ie_a[1]) & (rth / (beta + 1) <= 0.1 * (v["RE"] + v["RE1"]))
-          & (v["RE1"] <= v["RE"]) & (vce >= 1.5))
-    g = {r: a[ok] for r, a in g.items()}
-    v = {r: a[ok] for r, a in v.items()}
+    vb = vcc * vb_["R2"] / (vb_["R1"] + vb_["R2"])
+    rth = vb_["R1"] * vb_["R2"] / (vb_["R1"] + vb_["R2"])
+    ie = (vb - p.vbe_v) / (vb_["RE"] + vb_["RE1"] + rth / (beta + 1))
+    vce = vcc - ie * beta / (beta + 1) * vb_["RC"] - ie * (vb_["RE"] + vb_["RE1"])
+    ok = ((vb >= p.vbe_v + 0.3) & (vb <= 0.7 * vcc) & (vcc / (vb_["R1"] + vb_["R2"]) <= spec.ie_a[1])
+          & (ie >= spec.ie_a[0]) & (ie <= spec.ie_a[1]) & (rth / (beta + 1) <= 0.1 * (vb_["RE"] + vb_["RE1"]))
+          & (vb_["RE1"] <= vb_["RE"]) & (vce >= 1.5))
+    gb = {r: a[ok] for r, a in gb.items()}
+    vb_ = {r: a[ok] for r, a in vb_.items()}
     ie, rth = ie[ok], rth[ok]
-    # coupling and bypass by their rule
+    # coupling and bypass by their rule (they depend on the bias network only)
     derate = np.array([CAP_DERATE.get(d, 0.8) for d in C.dielectric])
     cc = ic[~np.isfinite(C.voltage_v[ic]) | (C.voltage_v[ic] * derate[ic] >= vcc)]
     cc = cc[np.argsort(C.value[cc], kind="stable")]
     gm = ie / HAND_VT_V
-    r_in = 1.0 / (1.0 / rth + 1.0 / (p.hfe_nominal / gm + (p.hfe_nominal + 1) * v["RE1"]))
-    feeds = {"CC1": v["RC"], "CC2": r_in, "CE": np.minimum(v["RE"], 1.0 / gm + v["RE1"])}
+    r_in = 1.0 / (1.0 / rth + 1.0 / (p.hfe_nominal / gm + (p.hfe_nominal + 1) * vb_["RE1"]))
+    feeds = {"CC1": vb_["RC"], "CC2": r_in, "CE": np.minimum(vb_["RE"], 1.0 / gm + vb_["RE1"])}
     omega = 2 * np.pi * spec.freq_hz
     keep = np.ones(ie.size, dtype=bool)
     for r, z in feeds.items():
         need = 1.0 / (omega * 0.5 * COUPLING_FRACTION * z)
         k = np.searchsorted(C.value[cc], need, "left")
         keep &= k < cc.size
-        g[r] = cc[np.minimum(k, cc.size - 1)]
-        v[r] = C.value[g[r]]
-    g = {r: a[keep] for r, a in g.items()}
-    v = {r: a[keep] for r, a in v.items()}
-    n = keep.sum()
-    if n == 0:
+        gb[r] = cc[np.minimum(k, cc.size - 1)]
+    gb = {r: a[keep] for r, a in gb.items()}
+    # the tank product and its rules, then every tank with every bias network
+    gt = _tank_product(drawer, spec, topology)
+    nt, nb = next(iter(gt.values())).size, keep.sum()
+    if nt == 0 or nb == 0:
         return []
-    tols = {r: (L if r == "L1" else C).tol[g[r]] for r in TANK}
-    for r in BIAS:
-        tols[r] = np.where(g[r] >= 0, R.tol[np.maximum(g[r], 0)], 0.0)
-    dcr = L.dcr_ohm[g["L1"]]
+    it, ib = (a.ravel() for a in np.meshgrid(np.arange(nt), np.arange(nb), indexing="ij"))
+    g = {r: a[it] for r, a in gt.items()} | {r: a[ib] for r, a in gb.items()}
+    kind_lines = {r: (L if r.startswith("L") else C) for r in tank} | {r: R for r in BIAS} | {r: C for r in COUPLING}
+    v = {r: np.where(a >= 0, kind_lines[r].value[np.maximum(a, 0)], 0.0) for r, a in g.items()}
+    tols = {r: np.where(g[r] >= 0, kind_lines[r].tol[np.maximum(g[r], 0)], 0.0) for r in tank + BIAS}
+    coils = [r for r in tank if r.startswith("L")]
+    dcr = {r: L.dcr_ohm[g[r]] for r in coils}
+    if topology == "hartley":
+        v["K"] = np.zeros(it.size)  # two separate coils
+    n = it.size
+    topo = get_topology(topology)
 
     def engine(rows, values, hfe, temp_c):
-        m = rows.size
-        full = lambda x: np.full(m, float(x))  # noqa: E731
-        b = DesignBatch(topology=get_topology("colpitts-ce"), values={r: a[rows] for r, a in values.items()},
-                        dcr_ohm={"L1": dcr[rows]}, hfe=full(hfe), vbe_v=full(p.vbe_v), ft_hz=full(p.ft_hz),
-                        cob_f=full(p.cob_f), vaf_v=full(p.vaf_v), vcc_v=full(vcc), temp_c=full(temp_c),
-                        stray_f=full(style_stray_f(spec.style)))
-        return small_signal(b)  # global phase-zero search
+        """Loop frequency, margin and saturation of ``rows`` (in chunks, to bound the memory)."""
+        parts = []
+        for start in range(0, rows.size, ENGINE_CHUNK):
+            sub = rows[start:start + ENGINE_CHUNK]
+            full = lambda x: np.full(sub.size, float(x))  # noqa: E731
+            b = DesignBatch(topology=topo, values={r: a[sub] for r, a in values.items()},
+                            dcr_ohm={r: a[sub] for r, a in dcr.items()}, hfe=full(hfe), vbe_v=full(p.vbe_v),
+                            ft_hz=full(p.ft_hz), cob_f=full(p.cob_f), vaf_v=full(p.vaf_v), vcc_v=full(vcc),
+                            temp_c=full(temp_c), stray_f=full(style_stray_f(spec.style)))
+            ss = small_signal(b)  # global phase-zero search
+            parts.append((ss.freq_loop_hz, ss.margin, ss.dc.saturated))
+        f, m, sat = (np.concatenate(x) for x in zip(*parts))
+        return SimpleNamespace(freq_loop_hz=f, margin=m, saturated=sat)
 
     rows = np.arange(n)
     ss = engine(rows, v, p.hfe_nominal, spec.nominal_c)
     err = ss.freq_loop_hz / spec.freq_hz - 1
-    # the tank's own resonance: strays on both sides, the transistor's Cmu on the collector
-    # side and Cpi + Cmu on the base side (estimated at the middle of the current window)
     caps = space.DeviceCaps.estimate(p, float(np.sqrt(spec.ie_a[0] * spec.ie_a[1])))
-    stray = style_stray_f(spec.style)
-    ca, cb = v["C1"] + stray + caps.cmu_f, v["C2"] + stray + caps.cpi_f + caps.cmu_f
-    f_tank = 1.0 / (2 * np.pi * np.sqrt(v["L1"] * ca * cb / (ca + cb)))
+    f_tank = _tank_resonance_hz(topology, v, style_stray_f(spec.style), caps)
     pull = ss.freq_loop_hz / f_tank - 1
     good = (np.isfinite(ss.freq_loop_hz) & (np.abs(err) <= spec.tol) & (ss.margin >= spec.min_margin)
-            & (np.abs(pull) <= space.FREQ_SLACK) & ~ss.dc.saturated)
+            & (np.abs(pull) <= space.FREQ_SLACK) & ~ss.saturated)
     rows = rows[good]
     if rows.size == 0:
         return []
@@ -151,7 +229,7 @@ def _one_npn(drawer, spec, npn):
             worst = np.minimum(worst, engine(rows, v, h, t).margin)
     step = 0.01
     derate = np.zeros(rows.size)
-    for r in TANK + BIAS:
+    for r in tank + BIAS:
         if not np.any(v[r][rows] > 0):
             continue
         bumped = dict(v)
@@ -165,7 +243,6 @@ def _one_npn(drawer, spec, npn):
     rows, worst, nominal = rows[good], worst[good], nominal[good]
     if rows.size == 0:
         return []
-    kind_lines = {r: (L if r == "L1" else R if r in BIAS else C) for r in g}
     cost = npn.cost + sum(np.where(g[r][rows] >= 0, kind_lines[r].cost[np.maximum(g[r][rows], 0)], 0.0) for r in g)
     parts = 1 + sum((g[r][rows] >= 0).astype(int) for r in g)
     w = spec.weights
@@ -173,9 +250,9 @@ def _one_npn(drawer, spec, npn):
              + w.get("margin", 0.0) * np.maximum(0.0, 1 - worst / (1.5 * spec.min_margin)) + w.get("cost", 0.0) * cost)
     best: dict = {}
     for j in np.lexsort((parts, score)):
-        key = tuple(int(g[r][rows[j]]) for r in TANK)
+        key = tuple(int(g[r][rows[j]]) for r in tank)
         if key not in best:
-            best[key] = {"score": float(score[j]), "parts": int(parts[j]), "npn": npn.part_id,
+            best[key] = {"score": float(score[j]), "parts": int(parts[j]), "topology": topology, "npn": npn.part_id,
                          "values": {r: float(a[rows[j]]) for r, a in v.items()},
                          "freq_hz": float(ss.freq_loop_hz[rows[j]]), "margin": float(nominal[j]),
                          "worst": float(worst[j])}

@@ -5,12 +5,14 @@ line at every position and runs the engine on every design that meets the
 stated rules; the search decomposes, screens and binary-searches.  Below the
 work limits (space.CORE_LIMIT, RC_PAIRS_LIMIT, find.TANK_MAX, BIAS_MAX,
 REFINE_MAX) the two must agree on the top k: the same scores and the same
-value sets.
+value sets.  Checked for the common-emitter Colpitts, the Clapp and the
+Hartley, each on drawers planted with a design of its own that works.
 """
 
 import numpy as np
 import pandas as pd
-from hypothesis import HealthCheck, given, settings, strategies as st
+import pytest
+from hypothesis import HealthCheck, event, given, settings, strategies as st
 
 from picker.circuit.device import NpnProfile
 from picker.eseries import preferred_values
@@ -18,12 +20,26 @@ from picker.search.find import Drawer, FindSpec, Npn, entry_values, ranked
 from tests.search.brute import brute_force, space_size
 
 TOP_K = 5
-#: A design that fits (the known design of test_find.py) keeps every drawer from being
-#: empty of results; the random lines around it compete with it.
 SEED_R = [100.0, 2.2e3, 10e3, 33e3]
-SEED_C = [4.7e-9, 47e-9, 1e-6]
-SEED_L = [1e-3]
-FREQ_HZ = 76.6e3
+#: Per topology: a design that fits keeps every drawer from being empty of results (the
+#: random lines around it compete with it); the seed lines, the target (the seed's
+#: engine frequency, rounded), the known tank, and how many random lines of each kind
+#: are added (the Clapp has one more capacitor position, so fewer capacitors).
+#: Colpitts: the known design of test_find.py.  Clapp and Hartley seeds: found by this
+#: module's brute force on the seed lines alone (loop frequency 176.4 kHz and 70.0 kHz).
+CASES = {
+    "colpitts-ce": dict(c=[4.7e-9, 47e-9, 1e-6], l=[1e-3], freq_hz=76.6e3,
+                        tank={"L1": 1e-3, "C1": 4.7e-9, "C2": 47e-9}, extra={"r": 4, "c": 4, "l": 3}),
+    "clapp": dict(c=[1e-9, 4.7e-9, 47e-9, 1e-6], l=[1e-3], freq_hz=176.5e3,
+                  tank={"L1": 1e-3, "C1": 4.7e-9, "C2": 47e-9, "C3": 1e-9}, extra={"r": 4, "c": 3, "l": 3}),
+    "hartley": dict(c=[4.7e-9, 47e-9, 1e-6], l=[1e-4, 1e-3], freq_hz=70e3,
+                    tank={"L1": 1e-3, "L2": 1e-4, "C1": 4.7e-9}, extra={"r": 4, "c": 4, "l": 3}),
+}
+EXAMPLES = 10
+
+
+def _dcr(l_h):
+    return [float(0.5 + 4e3 * x) for x in l_h]  # invented coils: 0.5 ohm + 4 ohm/mH
 
 
 def _lines(kind, vals, costs, tols, dcr=None):
@@ -39,35 +55,35 @@ def _lines(kind, vals, costs, tols, dcr=None):
     return Lines.from_frame(kind, df)
 
 
-
 @st.composite
-def drawers(draw):
+def drawers(draw, topology):
+    case = CASES[topology]
+
     def extra(lo_exp, hi_exp, seeds, k):
         pool = sorted({float(x) for x in preferred_values("E12", 10.0**lo_exp, 10.0**hi_exp)} - set(seeds))
         return draw(st.lists(st.sampled_from(pool), min_size=1, max_size=k, unique=True))
 
-    r = SEED_R + extra(1, 5, SEED_R, 3)
-    c = SEED_C + extra(-10, -7, SEED_C, 3)
-    ind = SEED_L + extra(-4, -2, SEED_L, 2)
+    r = SEED_R + extra(1, 5, SEED_R, case["extra"]["r"])
+    c = case["c"] + extra(-10, -7, case["c"], case["extra"]["c"])
+    ind = case["l"] + extra(-4, -2, case["l"], case["extra"]["l"])
     cost = lambda n: draw(st.lists(st.sampled_from([0.01, 0.02, 0.05, 0.1, 0.3]), min_size=n, max_size=n))  # noqa: E731
     tol = lambda n, opts: draw(st.lists(st.sampled_from(opts), min_size=n, max_size=n))  # noqa: E731
-    dcr = [float(0.5 + 4e3 * l) for l in ind]
     return Drawer({"resistor": _lines("resistor", r, cost(len(r)), tol(len(r), [0.01, 0.05])),
                    "capacitor": _lines("capacitor", c, cost(len(c)), tol(len(c), [0.02, 0.05])),
-                   "inductor": _lines("inductor", ind, cost(len(ind)), tol(len(ind), [0.05, 0.1]), dcr)},
+                   "inductor": _lines("inductor", ind, cost(len(ind)), tol(len(ind), [0.05, 0.1]), _dcr(ind))},
                   (Npn(NpnProfile(), 300, 50, 0.2, "Q1"),))
 
 
-def _spec(tol, min_margin):
-    return FindSpec(freq_hz=FREQ_HZ, tol=tol, topologies=("colpitts-ce",), min_margin=min_margin, mc=0)
+def _spec(topology, tol, min_margin):
+    return FindSpec(freq_hz=CASES[topology]["freq_hz"], tol=tol, topologies=(topology,), min_margin=min_margin, mc=0)
 
 
-@settings(max_examples=10, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(drawers(), st.sampled_from([0.01, 0.03]), st.sampled_from([1.5, 2.5]))
-def test_top_k_equals_brute_force(drawer, tol, min_margin):
-    spec = _spec(tol, min_margin)
-    ref = brute_force(drawer, spec)[:TOP_K]
-    assert ref  # the seed design is always admissible
+def _compare(drawer, spec):
+    full = brute_force(drawer, spec)
+    # the seed design is always admissible, so every example compares a non-empty ranking
+    assert full, space_size(drawer, spec)
+    event(f"{spec.topologies[0]}: reference results {len(full) if len(full) <= 5 else 'more than 5'}")
+    ref = full[:TOP_K]
     got = ranked(drawer, spec)[:TOP_K]
     assert len(got) == len(ref), (len(got), len(ref), space_size(drawer, spec))
     ref_scores = np.array([d["score"] for d in ref])
@@ -76,6 +92,7 @@ def test_top_k_equals_brute_force(drawer, tol, min_margin):
     np.testing.assert_allclose(got_scores, ref_scores, rtol=0, atol=1e-4)
     # value sets agree wherever the score is not tied with a neighbour
     for k, d in enumerate(ref):
+        assert got[k][2]["topology"] == d["topology"]
         tied = np.sum(np.abs(ref_scores - ref_scores[k]) <= 2e-4) > 1
         if not tied:
             vals = entry_values(got[k])
@@ -83,15 +100,29 @@ def test_top_k_equals_brute_force(drawer, tol, min_margin):
                 assert np.isclose(vals[r], x, rtol=1e-12), (k, r, vals[r], x)
 
 
-def test_the_seed_design_is_in_the_reference():
+@pytest.mark.parametrize("topology", list(CASES))
+@settings(max_examples=EXAMPLES, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(data=st.data())
+def test_top_k_equals_brute_force(topology, data):
+    drawer = data.draw(drawers(topology), "drawer")
+    spec = _spec(topology, data.draw(st.sampled_from([0.01, 0.03, 0.05]), "tol"),
+                 data.draw(st.sampled_from([1.5, 2.5]), "min_margin"))
+    _compare(drawer, spec)
+
+
+@pytest.mark.parametrize("topology", list(CASES))
+def test_the_seed_design_is_in_the_reference(topology):
     """The reference is not vacuous: on the seed drawer alone it finds the known tank."""
+    case = CASES[topology]
+    c, ind = case["c"], case["l"]
     d = Drawer({"resistor": _lines("resistor", SEED_R, [0.01] * 4, [0.01] * 4),
-                "capacitor": _lines("capacitor", SEED_C, [0.05] * 3, [0.02] * 3),
-                "inductor": _lines("inductor", SEED_L, [0.3], [0.05], [5.0])},
+                "capacitor": _lines("capacitor", c, [0.05] * len(c), [0.02] * len(c)),
+                "inductor": _lines("inductor", ind, [0.3] * len(ind), [0.05] * len(ind), _dcr(ind))},
                (Npn(NpnProfile(), 300, 50, 0.2, "Q1"),))
-    spec = _spec(0.03, 1.5)
+    spec = _spec(topology, 0.03, 1.5)
     ref = brute_force(d, spec)
-    assert ref and {r: ref[0]["values"][r] for r in ("L1", "C1", "C2")} == {"L1": 1e-3, "C1": 4.7e-9, "C2": 47e-9}
-    assert abs(ref[0]["freq_hz"] / FREQ_HZ - 1) <= 0.03 and ref[0]["worst"] >= 1.5
+    assert ref and {r: ref[0]["values"][r] for r in case["tank"]} == case["tank"]
+    assert ref[0]["topology"] == topology
+    assert abs(ref[0]["freq_hz"] / spec.freq_hz - 1) <= 0.03 and ref[0]["worst"] >= 1.5
     got = ranked(d, spec)
     assert np.isclose(got[0][0], ref[0]["score"], rtol=1e-6)
