@@ -2,7 +2,7 @@
 
 Run from the repository root (no simulator needed)::
 
-    python bench/reorder.py [--topology colpitts-ce] [--targets 455k:1%:4,100k:2%:10,7M:1%:2]
+    python bench/reorder.py [--topology colpitts-ce] [--targets 455k:1%:25,100k:2%:40,7M:1%:10]
 
 Loads ``data/demo_stock.csv`` into an in-memory drawer (through a temporary
 SQLite store, as the CLI does) and the three invented demo suppliers, then
@@ -48,7 +48,7 @@ def demo_drawer():
 def main() -> None:
     ap = argparse.ArgumentParser()
     ap.add_argument("--topology", default="any")
-    ap.add_argument("--targets", default="455k:1%:4,100k:2%:10,7M:1%:2")
+    ap.add_argument("--targets", default="455k:1%:25,100k:2%:40,7M:1%:10")
     args = ap.parse_args()
     targets = [parse_target(t) for t in args.targets.split(",")]
     drawer, suppliers = demo_drawer(), demo_suppliers()
