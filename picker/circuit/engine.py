@@ -382,7 +382,12 @@ def _steady_state(batch, model, dc, margin, w_loop, network, iterations=8):
     vbx = v[:, ib] - vx
     tank_amp = drive * np.abs(tank / vbx)
     cb_amp = drive * np.abs(vcb / vbx)
-    limit = np.maximum(dcx.vc_v - dcx.vb_v + VCB_FORWARD_V, 0.0)
+    # the collector-base swing may reach forward bias at the running point; where the
+    # drive's bias shift leaves no headroom at all (a strongly overdriven loop: the hand
+    # DC model then has the collector below the base) the clipped swing is set by the
+    # quiescent headroom instead of being reported as zero
+    limit = dcx.vc_v - dcx.vb_v + VCB_FORWARD_V
+    limit = np.where(limit > 0, limit, np.maximum(sdc.vc_v - sdc.vb_v + VCB_FORWARD_V, 0.0))
     clip = cb_amp > limit
     scale = np.where(clip, limit / np.maximum(cb_amp, 1e-30), 1.0)
     amp[run] = 2 * tank_amp * scale

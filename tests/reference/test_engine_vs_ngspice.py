@@ -88,3 +88,24 @@ def test_refined_beats_hand_method(outcomes, capsys):
               f" max: picker {100 * eng.max():.3f} %, hand {100 * hand.max():.3f} %")
     assert eng.mean() < hand.mean()
     assert eng.max() < FREQ_TOL
+
+
+#: Coarser amplitude bound where the swing is clipped by the supply headroom: the engine
+#: then takes the quiescent collector-base headroom as the limit (measured -36 % here).
+CLIPPED_AMP_TOL = 0.40
+OVERDRIVEN = ("ce-455k-overdriven", "colpitts-ce",
+              dict(L1=270e-6, C1=470e-12, C2=8.2e-9, R1=8.2e3, R2=820, RE=470, RE1=56, RC=8.2e3,
+                   CC1=1e-9, CC2=10e-9, CE=100e-9), "breadboard")
+
+
+def test_overdriven_design_is_not_reported_at_zero_amplitude(ngspice_bin):
+    """A loop with margin ~12 whose drive shifts the bias until the hand DC model leaves
+    no collector-base headroom: it oscillates in ngspice (13 Vpp); the engine used to
+    report 0 Vpp there."""
+    from tests.reference.designs import simulate
+
+    o = simulate(OVERDRIVEN)
+    assert o.predicted["margin"] > 5 and o.sim_started and not o.sim_bursts
+    assert _rel(o.predicted["freq_hz"], o.sim_freq_hz) < FREQ_TOL
+    assert o.predicted["amplitude_vpp"] > 0
+    assert _rel(o.predicted["amplitude_vpp"], o.sim_amplitude_vpp) < CLIPPED_AMP_TOL
