@@ -22,7 +22,26 @@ from picker.errors import PickerError
 STYLE_STRAY_F = {"ideal": 0.0, "pcb": 1e-12, "perfboard": 3e-12, "breadboard": 5e-12}
 
 
+#: Prefix of a calibrated style: ``calibrated:<farad per node>``, the stray fitted from a
+#: measured build (``picker.builds.retune``; ``picker find --style calibrated:BUILD_ID`` writes it).
+CALIBRATED_PREFIX = "calibrated:"
+
+
+def calibrated_style(stray_f: float) -> str:
+    """The style text of a calibrated stray (farad per node)."""
+    return f"{CALIBRATED_PREFIX}{float(stray_f):.6g}"
+
+
 def style_stray_f(style: str) -> float:
+    if style.startswith(CALIBRATED_PREFIX):
+        try:
+            v = float(style[len(CALIBRATED_PREFIX):])
+        except ValueError:
+            v = float("nan")
+        if not (np.isfinite(v) and 0 <= v < 1e-9):
+            raise PickerError(f"calibrated build style: expected {CALIBRATED_PREFIX}FARAD with 0 <= FARAD < 1 nF "
+                              f"(got {style!r})")
+        return v
     if style not in STYLE_STRAY_F:
         raise PickerError(
             f"unknown build style (got {style!r}; expected one of {', '.join(STYLE_STRAY_F)})"
