@@ -1,4 +1,4 @@
-"""The ``picker`` command: root app, global ``--db`` option, error handling.
+"""The ``picker`` command: root app, global ``--db`` and ``--user`` options, error handling.
 
 Command groups live one per module in ``picker/cli/``.  Each module defines
 ``register(parent: typer.Typer) -> None`` that attaches its sub-app
@@ -16,13 +16,13 @@ import typer
 from sqlalchemy import exc as sa_exc
 from typer.core import TyperGroup
 
-from picker.cli import build, catalog, check, demo, find, picklist, reorder, stock
+from picker.cli import build, catalog, check, demo, find, picklist, reorder, retune, stock
 from picker.cli.env import Env, get_env
 from picker.cli.output import print_error
 from picker.errors import PickerError
 
 #: Command-group modules, each with ``register(parent)``.  New groups go here.
-COMMAND_MODULES = (stock, catalog, demo, check, find, reorder, build, picklist)
+COMMAND_MODULES = (stock, catalog, demo, check, find, reorder, build, retune, picklist)
 
 
 class PickerGroup(TyperGroup):
@@ -67,6 +67,15 @@ def _root(
             "else stock.sqlite in the user data dir.",
         ),
     ] = None,
+    user: Annotated[
+        str | None,
+        typer.Option(
+            "--user",
+            metavar="NAME",
+            help="Who is making the changes (recorded in the ledger, builds and orders). "
+            "Default: the OS user name.",
+        ),
+    ] = None,
 ) -> None:
     """Pick on-hand parts for single-transistor LC oscillators."""
     env = ctx.obj if isinstance(ctx.obj, Env) else None
@@ -76,6 +85,8 @@ def _root(
         ctx.call_on_close(env.close)
     if db:
         env.use_db(db)
+    if user is not None:
+        env.use_user(user)
 
 
 for _module in COMMAND_MODULES:

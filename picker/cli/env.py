@@ -16,6 +16,7 @@ from rich.console import Console
 
 from picker.store import SCHEMA_VERSION, Store, open_store, resolve_db_url
 from picker.store.engine import display_url
+from picker.store.ledger import check_user
 
 
 def _out() -> Console:
@@ -41,6 +42,9 @@ class Env:
         writes to a store the user named explicitly).
     data_dir : Path
         Per-user data directory (platformdirs).
+    user : str or None
+        Name recorded in new ledger, build, order and find rows (``--user``); None:
+        the OS user name.
     """
 
     out: Console = field(default_factory=_out)
@@ -48,12 +52,17 @@ class Env:
     db_url: str = field(default_factory=lambda: resolve_db_url(None))
     db_given: bool = False
     data_dir: Path = field(default_factory=lambda: Path(platformdirs.user_data_dir("picker")))
+    user: str | None = None
     _store: Store | None = field(default=None, repr=False)
 
     def use_db(self, option: str) -> None:
         """Point the env at the store named by ``--db``."""
         self.db_url = resolve_db_url(option)
         self.db_given = True
+
+    def use_user(self, name: str) -> None:
+        """Record ``name`` (``--user``) as who makes this run's changes."""
+        self.user = check_user(name)
 
     def store(self, *, create: bool = True, allow_upgrade: bool = False) -> Store | None:
         """Open the store once per run (see :func:`picker.store.open_store`).
@@ -62,7 +71,7 @@ class Env:
         An automatic upgrade is reported on ``err``.
         """
         if self._store is None:
-            store = open_store(self.db_url, create=create, allow_upgrade=allow_upgrade)
+            store = open_store(self.db_url, create=create, allow_upgrade=allow_upgrade, user=self.user)
             if store is None:
                 return None
             if store.upgraded_from is not None and store.upgraded_from < SCHEMA_VERSION:

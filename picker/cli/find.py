@@ -157,7 +157,7 @@ def find_command(
     ie: Annotated[str, typer.Option("--ie", metavar="LO..HI", help="Emitter current window.")] = "0.5m..3m",
     npn: Annotated[str, typer.Option("--npn", metavar="NAME|any", help="npn profile name from the store, or any.")] = "any",
     boards: Annotated[str, typer.Option("--boards", metavar="N", help="Boards to build (quantities must suffice).")] = "1",
-    style: Annotated[str, typer.Option("--style", help=f"Build style: {', '.join(STYLE_STRAY_F)}.")] = "breadboard",
+    style: Annotated[str, typer.Option("--style", help=f"Build style: {', '.join(STYLE_STRAY_F)}, or calibrated:BUILD_ID (the stray fitted from a measured build).")] = "breadboard",
     temp: Annotated[str, typer.Option("--temp", metavar="LO..HI", help="Temperature range, °C.")] = "0..50",
     combine: Annotated[bool, typer.Option("--combine", help="Also make the tank's trim value from two parts in series or parallel.")] = False,
     top: Annotated[str, typer.Option("--top", metavar="N", help="Candidates to show.")] = "10",
@@ -168,6 +168,7 @@ def find_command(
 ) -> None:
     """Find the oscillators the parts on hand can build for a target frequency, best first."""
     env = get_env(ctx)
+    style = calibrated_from_build(env, style)
     spec = build_spec(freq, tol, topology, min_margin, supply, ie, npn, boards, style, temp, combine, top,
                       weights, mc, seed)
     store = env.store(create=False)
@@ -191,6 +192,29 @@ def find_command(
     env.out.print(find_report(spec, result))
     if not result.candidates:
         raise typer.Exit(1)
+
+
+def calibrated_from_build(env: Env, style: str) -> str:
+    """``calibrated:BUILD_ID`` -> ``calibrated:FARAD``, the stray fitted from that build's measurements
+    (``picker build retune``); any other style is returned as given."""
+    from picker.circuit.design import CALIBRATED_PREFIX, calibrated_style
+
+    t = style.strip().lower()
+    if not t.startswith(CALIBRATED_PREFIX):
+        return style
+    ref = t[len(CALIBRATED_PREFIX):].strip()
+    if not ref.isdigit():
+        raise PickerError(f"--style: expected calibrated:BUILD_ID, the id of a measured build (got {style!r})")
+    from picker.cli.retune import fitted_stray
+
+    store = env.store(create=False)
+    if store is None:
+        raise PickerError(f"--style {style}: no store at {display_url(env.db_url)}")
+    with store.Session.begin() as session:
+        try:
+            return calibrated_style(fitted_stray(session, int(ref)))
+        except PickerError as e:
+            raise PickerError(f"--style {style}: {e}") from None
 
 
 def build_spec(freq, tol, topology, min_margin, supply, ie, npn, boards, style, temp, combine, top, weights,

@@ -1,4 +1,4 @@
-"""``picker stock``: import, export, list, add, adjust, history, upgrade.
+"""``picker stock``: import, export, list, add, adjust, history, upgrade, migrate.
 
 Thin layer: parse options, open the store through the Env, own the transaction,
 call ``picker.store``, render through ``picker.cli.output``.
@@ -30,9 +30,10 @@ from picker.store import (
     write_stock_csv,
 )
 from picker.store.csvio import stock_csv_text
-from picker.store.engine import display_url
+from picker.store.engine import display_url, resolve_db_url
 from picker.store.ledger import describe
 from picker.store.query import entry_dict
+from picker.store.transfer import copy_store
 from picker.store.spec import COLUMNS, RATINGS, parse_kind, parse_part
 
 app = typer.Typer(name="stock", no_args_is_help=True, help="Parts on hand: import, list, add, adjust.")
@@ -295,3 +296,25 @@ def upgrade(
     print_message(env, f"store {display_url(store.url)} is at schema v{SCHEMA_VERSION}")
 
 
+@app.command("migrate")
+def migrate_(
+    ctx: typer.Context,
+    to: Annotated[str, typer.Option("--to", metavar="PATH_OR_URL",
+                                    help="Empty target database, e.g. postgresql+psycopg://user@host/picker.")],
+    as_json: Annotated[bool, typer.Option("--json", help="JSON report on stdout.")] = False,
+) -> None:
+    """Copy the whole store (ids kept) into an empty database, e.g. a SQLite file onto a server; verified."""
+    env = get_env(ctx)
+    store = env.store(create=False)
+    if store is None:
+        raise PickerError(f"no store at {display_url(env.db_url)}: nothing to migrate")
+    report = copy_store(store, resolve_db_url(to))
+    if as_json:
+        print_json(env, report.as_dict())
+        return
+    rows = [(name, n) for name, n in report.rows.items()]
+    print_table(env, ["table", ("rows", "right")], rows,
+                title=f"Copied into {report.target}")
+    print_message(env, f"verified: row counts per table equal, {report.pieces} pieces on hand, "
+                       f"{report.ledger_rows} ledger rows, the ledger balances; point picker at the new store "
+                       f"with --db or PICKER_DB")

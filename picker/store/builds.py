@@ -79,7 +79,7 @@ def save_last_find(session: Session, spec_dict: dict, designs: list[dict]) -> in
     """
     session.execute(delete(LastFindCandidate))
     session.execute(delete(LastFind))
-    row = LastFind(created_at=dt.datetime.now(dt.timezone.utc), user=current_user(),
+    row = LastFind(created_at=dt.datetime.now(dt.timezone.utc), user=current_user(session),
                    spec=json.dumps(spec_dict, allow_nan=False, default=_json_default))
     row.candidates = [LastFindCandidate(rank=k, design=json.dumps(d, allow_nan=False, default=_json_default))
                       for k, d in enumerate(designs, 1)]
@@ -329,7 +329,7 @@ def new_build(session: Session, design: dict, boards: int, name: str, user: str 
         raise ShortageError(f"not enough stock for {boards} board(s) of build {name!r}: " + "; ".join(short))
     row = BuildRow(name=name, boards=boards, status="reserved",
                    design=json.dumps(design, allow_nan=False, default=_json_default),
-                   created_at=dt.datetime.now(dt.timezone.utc), user=user or current_user())
+                   created_at=dt.datetime.now(dt.timezone.utc), user=user or current_user(session))
     row.lines = [BuildLineRow(part_id=pid, designators=",".join(r), qty=q) for pid, (r, q) in demand.items()]
     session.add(row)
     session.flush()

@@ -254,7 +254,7 @@ def record_order(
     if missing:
         raise PickerError(f"order charge unknown for supplier {', '.join(repr(n) for n in missing)} (not in the store)")
     total = sum(c for _, _, c in checked) + sum(float(charges[n]) for n in names)
-    order = Order(created_at=_now(), status="incoming", user=current_user(), total_cost=total,
+    order = Order(created_at=_now(), status="incoming", user=current_user(session), total_cost=total,
                   note=(note.strip() or None) if note else None)  # fmt: skip
     order.lines = [
         OrderLine(supplier=p.item.supplier, sku=p.item.sku, kind=p.item.kind, packs=packs, qty=qty, cost=cost,

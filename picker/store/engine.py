@@ -13,6 +13,7 @@ from sqlalchemy.orm import Session, sessionmaker
 
 from picker.errors import PickerError
 from picker.store import migrate
+from picker.store.ledger import USER_INFO_KEY
 from picker.store.models import SCHEMA_VERSION
 
 #: Environment variable naming the store when no ``--db`` is given.
@@ -33,12 +34,17 @@ def resolve_db_url(option: str | None) -> str:
     ----------
     option : str or None
         A path (made absolute, ``~`` expanded, becomes ``sqlite:///ABS``) or a URL
-        (anything containing ``://``, passed through unchanged).
+        (anything containing ``://``, passed through unchanged, except that a bare
+        ``postgresql://`` or ``postgres://`` becomes ``postgresql+psycopg://``).
     """
     raw = option if option else os.environ.get(DB_ENV_VAR) or None
     if raw is None:
         return f"sqlite:///{default_db_path()}"
     if "://" in raw:
+        # A bare postgresql:// (or postgres://) URL gets the driver picker installs (psycopg 3).
+        for bare in ("postgresql://", "postgres://"):
+            if raw.startswith(bare):
+                return "postgresql+psycopg://" + raw[len(bare):]
         return raw
     return f"sqlite:///{Path(raw).expanduser().resolve()}"
 
@@ -116,12 +122,19 @@ class Store:
     created: bool = False
     upgraded_from: int | None = None
     backup_path: Path | None = None
+    user: str | None = None
+
+    @property
+    def backend(self) -> str:
+        """``sqlite``, ``postgresql``, ...: the SQLAlchemy backend name."""
+        return self.engine.dialect.name
 
     def close(self) -> None:
         self.engine.dispose()
 
 
-def open_store(url: str, *, create: bool = True, allow_upgrade: bool = False) -> Store | None:
+def open_store(url: str, *, create: bool = True, allow_upgrade: bool = False,
+               user: str | None = None) -> Store | None:
     """Open the store at ``url``, creating or upgrading its schema as needed.
 
     Parameters
@@ -135,6 +148,9 @@ def open_store(url: str, *, create: bool = True, allow_upgrade: bool = False) ->
         Upgrade an older server database.  SQLite files are always upgraded, after
         a backup copy is written beside them; server databases are only upgraded
         with this flag (back them up with the server's tools first).
+    user : str or None
+        Name the store's sessions record in new ledger, build, order and find rows
+        (``picker --user``); None: the OS user name (:func:`picker.store.ledger.current_user`).
 
     Raises
     ------
@@ -155,7 +171,8 @@ def open_store(url: str, *, create: bool = True, allow_upgrade: bool = False) ->
         elif path.is_dir():
             raise PickerError(f"store path {path} is a directory, expected a SQLite file")
     engine = make_engine(url)
-    store = Store(url, engine, sessionmaker(engine, expire_on_commit=False))
+    info = {USER_INFO_KEY: user} if user else {}
+    store = Store(url, engine, sessionmaker(engine, expire_on_commit=False, info=info), user=user)
     try:
         with engine.connect() as conn:
             version = migrate.read_version(conn)

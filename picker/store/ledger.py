@@ -18,12 +18,34 @@ from picker.store.models import LedgerEntry, Part
 from picker.store.spec import PartSpec, spec_of
 
 
-def current_user() -> str:
-    """OS user name for ledger rows ("unknown" if the OS cannot tell)."""
+#: Key of ``Session.info`` holding the user name a store's sessions record (``open_store(user=...)``).
+USER_INFO_KEY = "picker_user"
+#: Longest user name (the ``user_name`` columns are 64 characters).
+USER_MAX = 64
+
+
+def current_user(session: Session | None = None) -> str:
+    """Who a new ledger (build, order, find) row is recorded as.
+
+    The name the store was opened with (``picker --user NAME``: ``open_store(user=...)``
+    puts it in ``session.info``), else the OS user name ("unknown" if the OS cannot tell).
+    """
+    if session is not None:
+        name = session.info.get(USER_INFO_KEY)
+        if name:
+            return name
     try:
-        return getpass.getuser()
+        return getpass.getuser()[:USER_MAX]
     except Exception:  # getuser raises OSError/KeyError without a passwd entry or env var
         return "unknown"
+
+
+def check_user(name: str) -> str:
+    """A ``--user`` name stripped; PickerError unless it is one line of 1..64 characters."""
+    text = (name or "").strip()
+    if not text or len(text) > USER_MAX or any(c in text for c in "\r\n\t"):
+        raise PickerError(f"--user: expected one line of 1..{USER_MAX} characters (got {name!r})")
+    return text
 
 
 def describe(part: Part) -> str:
@@ -65,7 +87,7 @@ def change_qty(session: Session, part: Part, delta: int, reason: str) -> LedgerE
         delta=delta,
         reason=reason.strip(),
         created_at=dt.datetime.now(dt.timezone.utc),
-        user=current_user(),
+        user=current_user(session),
     )
     session.add(entry)
     session.flush()

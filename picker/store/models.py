@@ -27,7 +27,7 @@ from sqlalchemy import (
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
 
 #: Schema version this code reads and writes; the highest migration in db/migrations.
-SCHEMA_VERSION = 4
+SCHEMA_VERSION = 5
 
 
 class UTCDateTime(TypeDecorator):
@@ -337,3 +337,25 @@ class LastFindCandidate(Base):
     design: Mapped[str] = mapped_column(Text)
 
     find: Mapped[LastFind] = relationship(back_populates="candidates")
+
+
+# ---- v5: measurements of built boards (db/migrations/0005_measurements.py) --------------
+
+
+class MeasurementRow(Base):
+    """One reading of a built board: frequency (and amplitude, volt peak to peak), when and by whom."""
+
+    __tablename__ = "measurements"
+    __table_args__ = (
+        CheckConstraint("board >= 1", name="ck_measurements_board"),
+        CheckConstraint("freq_hz > 0", name="ck_measurements_freq"),
+        CheckConstraint("amplitude_vpp IS NULL OR amplitude_vpp >= 0", name="ck_measurements_amplitude"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    build_id: Mapped[int] = mapped_column(ForeignKey("builds.id"), index=True)
+    board: Mapped[int] = mapped_column(Integer)
+    freq_hz: Mapped[float] = mapped_column(Double)
+    amplitude_vpp: Mapped[float | None] = mapped_column(Double)
+    created_at: Mapped[dt.datetime] = mapped_column(UTCDateTime)
+    user: Mapped[str | None] = mapped_column("user_name", String(64))

@@ -26,8 +26,8 @@ def assert_user_error(result, *fragments):
 
 
 def make_v1_store(path):
-    """A schema-v1 store (migration 0001 only) holding two parts."""
-    engine = create_engine(f"sqlite:///{path}")
+    """A schema-v1 store (migration 0001 only) holding two parts (a SQLite path, or a URL of an empty database)."""
+    engine = create_engine(path if "://" in str(path) else f"sqlite:///{path}")
     with engine.begin() as conn:
         create_fresh(conn, target=1)
         conn.execute(text("INSERT INTO parts (id, kind, value, qty, bin) VALUES (1, 'resistor', 4700, 3, 'R-A1')"))

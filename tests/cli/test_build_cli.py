@@ -14,6 +14,7 @@ from cli_helpers import assert_user_error
 from conftest import Run
 from picker.store import ledger_balance_ok, open_store, resolve_db_url
 from tests.search.test_find import _target
+from tests.server_db import install_store_file, store_exists
 
 STOCK = """kind,value,qty,bin,tolerance,unit_cost,voltage_v,power_w,dielectric,dcr_ohm,name,hfe_min,hfe_max
 resistor,100,20,R-1,5%,0.1,,0.25,,,,,
@@ -55,7 +56,7 @@ def found_files(tmp_path_factory):
 
 @pytest.fixture
 def found(run, found_files):
-    shutil.copyfile(found_files[1], run.db)
+    install_store_file(found_files[1], run.db)
     return run, found_files[2]
 
 
@@ -163,10 +164,10 @@ def test_unknown_id_and_wrong_status(found):
 
 
 def test_from_find_without_a_saved_find_and_rank_out_of_range(run, found_files):
-    shutil.copyfile(found_files[0], run.db)  # stock imported, never searched
+    install_store_file(found_files[0], run.db)  # stock imported, never searched
     assert_user_error(run("build", "new", "--from-find", "1", "--boards", "1", "--name", "x"),
                       "--from-find: this store has no saved find; run 'picker find ...' first")
-    shutil.copyfile(found_files[1], run.db)
+    install_store_file(found_files[1], run.db)
     n = len(found_files[2])
     assert_user_error(run("build", "new", "--from-find", n + 1, "--boards", "1", "--name", "x"),
                       f"--from-find {n + 1}: the last find", f"has {n} candidate(s); expected a rank from 1 to {n}")
@@ -220,7 +221,7 @@ def test_design_file_that_is_missing_or_not_json(found, tmp_path):
 
 def test_build_commands_need_a_store(run):
     assert_user_error(run("build", "list"), "no store at")
-    assert not run.db.exists()
+    assert not store_exists(run.db)
 
 
 def test_design_file_with_nan(found, tmp_path):

@@ -6,7 +6,8 @@ from pathlib import Path
 
 import pytest
 
-from cli_helpers import DEMO_CSV, assert_user_error, file_hash
+from cli_helpers import DEMO_CSV, assert_user_error
+from tests.server_db import store_exists, store_snapshot
 from picker.planning.catalog import Purchase
 from picker.store import ledger_balance_ok, open_store, resolve_db_url
 from picker.store.catalog import load_suppliers, record_order
@@ -67,9 +68,9 @@ def test_bad_catalog_is_reported_by_row_and_column_and_writes_nothing(run, db, t
     nokind = tmp_path / "nokind.csv"
     nokind.write_text("sku,value,prices\nA,1k,1:0.05\n")
     assert_user_error(run("catalog", "import", nokind, "--supplier", "X"), "row 2, column kind: kind is required")
-    assert not db.exists()  # the file is checked before the store is opened
+    assert not store_exists(db)  # the file is checked before the store is opened
     import_demo(run)
-    before = file_hash(db)
+    before = store_snapshot(db)
     bad = tmp_path / "bad.csv"
     bad.write_text(
         "sku,kind,value,pack,prices\n"
@@ -85,7 +86,7 @@ def test_bad_catalog_is_reported_by_row_and_column_and_writes_nothing(run, db, t
     assert len(lines) == 5 and all(line.startswith("error: ") for line in lines)
     for prefix in ("row 3, column sku: ", "row 4, column pack: ", "row 5, column prices: ", "row 6, column prices: "):
         assert any(line.startswith(f"error: {prefix}") for line in lines), (prefix, r.stderr)
-    assert file_hash(db) == before
+    assert store_snapshot(db) == before
 
 
 @pytest.mark.parametrize(

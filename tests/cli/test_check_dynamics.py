@@ -12,6 +12,7 @@ import pytest
 
 from picker.sim import ngspice
 from cli_helpers import assert_user_error
+from tests.server_db import store_exists
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (ISO/IEC 15948)
 
@@ -85,7 +86,7 @@ def test_human_report_names_the_bursting_and_the_remedy(run):
 )
 def test_option_errors(run, db, args, fragments):
     assert_user_error(run("check", "--topology", "colpitts-ce", *args), *fragments)
-    assert not db.exists()
+    assert not store_exists(db)
 
 
 def test_verify_without_ngspice_says_how_to_install(run, monkeypatch):

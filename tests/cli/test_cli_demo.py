@@ -4,6 +4,7 @@ import csv
 import json
 
 from cli_helpers import DEMO_CSV, assert_user_error
+from tests.server_db import store_exists
 
 from picker.cli.demo import demo_csv_path, run_demo
 
@@ -46,14 +47,14 @@ def test_demo_command_default_is_throwaway(run, db):
     r = run("demo", db=False)
     assert r.exit_code == 0, r.stderr
     assert "throwaway store" in r.stdout and "Stock per kind" in r.stdout and "R-A1..R-A12" in r.stdout
-    assert not db.exists()
+    assert not store_exists(db)
 
 
 def test_demo_json_and_explicit_store(run, db):
     r = run("demo", "--json")  # global --db given by the fixture: the demo store is kept there
     assert r.exit_code == 0, r.stderr
     data = json.loads(r.stdout)
-    assert data["throwaway"] is False and db.exists()
+    assert data["throwaway"] is False and store_exists(db)
     assert {k["kind"] for k in data["kinds"]} == {"resistor", "capacitor", "inductor", "npn"}
     listed = json.loads(run("stock", "list", "--json").stdout)
     assert sum(d["qty"] for d in listed) == data["import_summary"]["pieces"]

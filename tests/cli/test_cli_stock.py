@@ -13,7 +13,8 @@ from rich.console import Console
 from picker import units
 from picker.cli.env import Env
 from picker.store import SCHEMA_VERSION, resolve_db_url
-from cli_helpers import DEMO_CSV, assert_user_error, file_hash, make_v1_store
+from cli_helpers import DEMO_CSV, assert_user_error, make_v1_store
+from tests.server_db import store_exists, store_snapshot
 
 
 def list_json(run, *args):
@@ -62,7 +63,7 @@ def test_demo_store_quantities_match_the_csv(run):
 
 def test_bad_file_lists_every_error_and_leaves_the_store_unchanged(run, db, tmp_path):
     assert run("stock", "import", DEMO_CSV).exit_code == 0
-    before = file_hash(db)
+    before = store_snapshot(db)
     bad = tmp_path / "bad.csv"
     bad.write_text(
         "kind,value,qty,bin,tolerance,dcr_ohm,name,hfe_min,hfe_max\n"
@@ -82,13 +83,13 @@ def test_bad_file_lists_every_error_and_leaves_the_store_unchanged(run, db, tmp_
                    "row 7, column value", "row 8, column tolerance", "row 9, column dcr_ohm"]:  # fmt: skip
         assert any(line.startswith(f"error: {prefix}: ") for line in lines), (prefix, result.stderr)
     assert len(lines) == 8 and all(line.startswith("error: ") for line in lines)
-    assert file_hash(db) == before
+    assert store_snapshot(db) == before
     # dry run of a good file writes nothing either
     good = tmp_path / "good.csv"
     good.write_text("kind,value,qty,bin\nresistor,1k,5,R-Z1\n")
     dry = run("stock", "import", good, "--dry-run")
     assert dry.exit_code == 0 and "would import 1 rows" in dry.stdout and "1 new parts" in dry.stdout
-    assert file_hash(db) == before
+    assert store_snapshot(db) == before
 
 
 def test_unknown_column_is_an_error(run, db, tmp_path):
@@ -96,7 +97,7 @@ def test_unknown_column_is_an_error(run, db, tmp_path):
     bad.write_text("kind,value,qty,bin,colour\nresistor,1k,3,R-A1,brown\n")
     result = run("stock", "import", bad)
     assert_user_error(result, "row 1, column colour: unknown column (expected one of: kind, value, qty, bin")
-    assert not db.exists()
+    assert not store_exists(db)
 
 
 def test_dry_run_on_a_missing_store_creates_nothing(run, db, tmp_path):
@@ -104,7 +105,7 @@ def test_dry_run_on_a_missing_store_creates_nothing(run, db, tmp_path):
     good.write_text("kind,value,qty,bin\nresistor,1k,5,R-A1\nresistor,1k,2,R-A1\n")
     result = run("stock", "import", good, "--dry-run")
     assert result.exit_code == 0 and "1 rows merged" in result.stdout and "Rows that merge" in result.stdout
-    assert not db.exists()
+    assert not store_exists(db)
 
 
 def test_list_filters_and_natural_bin_order(run):
@@ -185,6 +186,7 @@ def test_picker_db_env_var_is_used(tmp_path, monkeypatch):
     assert r.exit_code == 0 and target.exists()
 
 
+@pytest.mark.sqlite_only
 def test_json_stdout_stays_clean_when_the_store_is_upgraded(run, db):
     make_v1_store(db)
     result = run("stock", "list", "--json")
@@ -234,3 +236,15 @@ def test_server_style_store_needs_explicit_upgrade(run, tmp_path):
     r = run("--db", url, "stock", "upgrade", "--yes", db=False)
     assert r.exit_code == 0 and f"schema v{SCHEMA_VERSION}" in r.stdout
     assert run("--db", url, "stock", "list", "--json", db=False).exit_code == 0
+
+
+def test_postgresql_store_needs_explicit_upgrade(run, server_db):
+    """A real server store at schema v1: refused until 'stock upgrade --yes', then upgraded in place."""
+    make_v1_store(server_db)
+    assert_user_error(run("--db", server_db, "stock", "list", db=False), "schema version 1", "stock upgrade --yes")
+    r = run("--db", server_db, "stock", "upgrade", "--yes", db=False)
+    assert r.exit_code == 0 and f"schema v{SCHEMA_VERSION}" in r.stdout, r.stderr
+    listed = json.loads(run("--db", server_db, "stock", "list", "--json", db=False).stdout)
+    assert [(d["id"], d["qty"], d["note"]) for d in listed] == [(1, 3, None), (2, 2, None)]
+    history = json.loads(run("--db", server_db, "stock", "history", "1", "--json", db=False).stdout)
+    assert [(h["delta"], h["user"]) for h in history] == [(3, None)]  # v1 rows: nobody knows who

@@ -1,13 +1,13 @@
 """End to end: picker find on a temporary demo store; user mistakes are one-line errors."""
 
 import json
-import shutil
 
 import pytest
 
 from picker.circuit.evaluate import check_design
 from tests.cli.cli_helpers import assert_user_error
 from tests.cli.conftest import Run
+from tests.server_db import install_store_file
 
 
 @pytest.fixture(scope="module")
@@ -21,7 +21,7 @@ def demo_store_file(tmp_path_factory):
 
 @pytest.fixture
 def demo_db(run, demo_store_file):
-    shutil.copyfile(demo_store_file, run.db)
+    install_store_file(demo_store_file, run.db)
     return run
 
 

@@ -1,7 +1,6 @@
 """Worker processes for tests/store/test_build_concurrency.py (a plain module so ``spawn`` can import it).
 
-A worker opens the store at a URL (a SQLite file now; a server URL works the same
-way) and runs random build operations, each in its own transaction, the way
+A worker opens the store at a URL (a SQLite file or a PostgreSQL database) and runs random build operations, each in its own transaction, the way
 separate ``picker build`` commands would.  It reports what it saw; the test
 compares that with the store afterwards.
 """
@@ -26,8 +25,10 @@ from picker.store.builds import (
 )
 from picker.store.models import Part
 
-# "... needs 6, 5 available (7 on hand, 2 reserved by other builds): short by 1"
-SHORT_RE = re.compile(r"needs (\d+), (\d+) available \((\d+) on hand, (\d+) reserved by other builds\): short by (\d+)")
+# "part 5 (capacitor 100 nF in bin C-1) at C1,CC1 needs 6, 5 available (7 on hand, 2 reserved by other builds):
+# short by 1" -> (part id, need, available, on hand, reserved, short)
+SHORT_RE = re.compile(r"part (\d+) \([^)]*\) at \S+ needs (\d+), (\d+) available \((\d+) on hand, "
+                      r"(\d+) reserved by other builds\): short by (\d+)")
 STATUS_RE = re.compile(r"^build \d+ \(.*\) is (reserved|done|cancelled|undone): only a (reserved|done) build can be")
 
 
@@ -38,8 +39,12 @@ def over_reserved(session) -> list[str]:
     return [f"part {p.id}: {held[p.id]} reserved, {p.qty} on hand" for p in parts if held[p.id] > p.qty]
 
 
-def worker(url: str, seed: int, n_ops: int, design: dict, name: str) -> dict:
+def worker(url: str, seed: int, n_ops: int, design: dict, name: str, weights=(5, 1, 2, 1)) -> dict:
     """Run ``n_ops`` random operations (reserve, cancel, done, undo) and return what happened.
+
+    ``weights`` are the relative chances of reserve, cancel, done and undo.  Each refused
+    reservation is logged as its parsed shortfalls (``shortages``) and the board count it
+    asked for (``short_boards``, same order).
 
     The target of cancel/done/undo is chosen in one transaction and acted on in the
     next, so another process may get there first: the loser must be refused with
@@ -47,19 +52,21 @@ def worker(url: str, seed: int, n_ops: int, design: dict, name: str) -> dict:
     """
     rng = random.Random(seed)
     store = open_store(url, create=False)
-    log = {"name": name, "reserve_tries": 0, "created": [], "shortages": [], "cancelled": [], "done": [],
+    log = {"name": name, "reserve_tries": 0, "created": [], "shortages": [], "short_boards": [], "cancelled": [], "done": [],
            "undone": [], "refused_status": 0, "other_errors": [], "over_reserved": []}
     try:
         for k in range(n_ops):
-            op = rng.choices(("reserve", "cancel", "done", "undo"), weights=(5, 1, 2, 1))[0]
+            op = rng.choices(("reserve", "cancel", "done", "undo"), weights=weights)[0]
             if op == "reserve":
                 log["reserve_tries"] += 1
+                boards = rng.randint(1, 3)
                 try:
                     with store.Session.begin() as s:
-                        rec = new_build(s, design, rng.randint(1, 3), f"{name} op {k}", user=name)
+                        rec = new_build(s, design, boards, f"{name} op {k}", user=name)
                     log["created"].append(rec.id)
                 except ShortageError as e:
                     log["shortages"].append([list(map(int, m)) for m in SHORT_RE.findall(str(e))])
+                    log["short_boards"].append(boards)
             else:
                 want = {"cancel": "reserved", "done": "reserved", "undo": "done"}[op]
                 with store.Session.begin() as s:

@@ -5,11 +5,16 @@
   operations the workers saw succeed imply, nothing is consumed twice, no part is
   reserved beyond what is on hand, and every refused reservation is one the refusing
   worker was told about with the figures that justify it.
+- 8 processes x 50 random reserve/cancel/done operations against a PostgreSQL server
+  (row locks): no quantity negative, every done build consumed exactly once, the ledger
+  sums equal the quantities, and every refusal is justified by a real shortfall.
+- A reservation that loses a race waits for the winner and is then refused with the
+  short part named; nothing of it is written (both back ends).
 - ``picker build done`` killed with SIGKILL inside its transaction leaves the store
   exactly as before; a normal done then succeeds.
 
-The workers take the store URL: set PICKER_TEST_SERVER_URL to an empty server
-database (e.g. postgresql+psycopg://user@host/picker_test) to run the same test there.
+The server variants run when PICKER_TEST_SERVER_URL names a server where the tests may
+create databases (``tests/server_db.py``; ``.ci/run`` sets it); each gets a new one.
 """
 
 import multiprocessing
@@ -17,6 +22,7 @@ import os
 import signal
 import subprocess
 import sys
+import threading
 import time
 from collections import Counter
 
@@ -26,6 +32,7 @@ from sqlalchemy import func, select
 from picker.store import LedgerEntry, Part, add_stock, ledger_balance_ok, open_store, resolve_db_url
 from picker.store.builds import PAUSE_ENV_VAR, PAUSE_MARKER_ENV_VAR, get_build, list_builds, new_build
 from tests.store.build_workers import over_reserved, worker
+from tests.server_db import create_database, drop_database
 from tests.store.test_builds import STOCK, _spec, design
 
 N_WORKERS, N_OPS = 4, 50
@@ -35,11 +42,18 @@ SCARCE = {"C-1": 12, "L-1": 8}  # each build takes 2 x 100 nF and 1 x 1 mH per b
 @pytest.fixture(params=["sqlite", "server"])
 def url(request, tmp_path):
     if request.param == "sqlite":
-        return resolve_db_url(str(tmp_path / "shared.sqlite"))
-    server = os.environ.get("PICKER_TEST_SERVER_URL")
-    if not server:
-        pytest.skip("set PICKER_TEST_SERVER_URL to an empty server database to run this against it")
-    return server
+        yield resolve_db_url(str(tmp_path / "shared.sqlite"))
+        return
+    server = create_database("picker_conc")  # skips without PICKER_TEST_SERVER_URL
+    yield server
+    drop_database(server)
+
+
+@pytest.fixture
+def server_url_():
+    server = create_database("picker_conc")
+    yield server
+    drop_database(server)
 
 
 def _stock(url) -> dict:
@@ -58,59 +72,135 @@ def _stock(url) -> dict:
 
 
 def test_four_processes_reserving_cancelling_consuming_and_undoing(url):
+    _run_and_check(url, N_WORKERS, N_OPS, (5, 1, 2, 1))
+
+
+def test_eight_processes_on_the_server_reserving_cancelling_consuming(server_url_):
+    """The issue's proof on the real server: 8 x 50 reserve/cancel/done, demand beyond stock."""
+    _run_and_check(server_url_, 8, 50, (5, 1, 2, 0))
+
+
+def _ledger_balances(rows) -> dict[int, set[int]]:
+    """Every quantity each part has had (running balances in ledger order)."""
+    seen, running = {}, Counter()
+    for r in rows:
+        running[r.part_id] += r.delta
+        seen.setdefault(r.part_id, {0}).add(running[r.part_id])
+    return seen
+
+
+def _run_and_check(url, n_workers, n_ops, weights):
     ids = _stock(url)
     d = design(ids)
+    per_board = Counter()  # pieces per board of each part (a part at two positions counts twice)
+    for p in d["parts"].values():
+        per_board[p["part_id"]] += 1
     store = open_store(url)
     with store.Session.begin() as s:
         start = {p.id: p.qty for p in s.scalars(select(Part))}
     ctx = multiprocessing.get_context("spawn")
-    with ctx.Pool(N_WORKERS) as pool:
-        logs = pool.starmap(worker, [(url, 1000 + k, N_OPS, d, f"w{k}") for k in range(N_WORKERS)])
+    with ctx.Pool(n_workers) as pool:
+        logs = pool.starmap(worker, [(url, 1000 + k, n_ops, d, f"w{k}", weights) for k in range(n_workers)])
 
     created = [i for g in logs for i in g["created"]]
     done = [i for g in logs for i in g["done"]]
     undone = [i for g in logs for i in g["undone"]]
     cancelled = [i for g in logs for i in g["cancelled"]]
     # the scenario really had contention and shortfalls
-    assert sum(len(g["shortages"]) for g in logs) > 0 and done and undone and cancelled
-    for g in logs:
-        assert g["other_errors"] == [] and g["over_reserved"] == []
-        # every reservation attempt either made a build or was refused with a shortfall message
-        assert g["reserve_tries"] == len(g["created"]) + len(g["shortages"])
-        for shortfall in g["shortages"]:
-            assert shortfall, "a refusal must name at least one short part"
-            for need, avail, on_hand, held, short in shortfall:
-                assert need > avail == max(on_hand - held, 0) and short == need - avail
-    # each operation had exactly one winner
-    for ids_ in (created, done, undone, cancelled):
-        assert len(ids_) == len(set(ids_))
-    assert not set(done) & set(cancelled) and set(undone) <= set(done)
+    assert sum(len(g["shortages"]) for g in logs) > 0 and done and cancelled
+    assert bool(undone) == bool(weights[3])
 
     with store.Session.begin() as s:
+        rows = list(s.scalars(select(LedgerEntry).order_by(LedgerEntry.id)))
+        had = _ledger_balances(rows)
+        for g in logs:
+            assert g["other_errors"] == [] and g["over_reserved"] == []
+            # every reservation attempt either made a build or was refused with a shortfall message
+            assert g["reserve_tries"] == len(g["created"]) + len(g["shortages"])
+            assert len(g["short_boards"]) == len(g["shortages"])
+            for shortfall, boards in zip(g["shortages"], g["short_boards"]):
+                assert shortfall, "a refusal must name at least one short part"
+                for pid, need, avail, on_hand, held, short in shortfall:
+                    assert need > avail == max(on_hand - held, 0) and short == need - avail
+                    # the need is this request's, and the quantity quoted is one the part really had
+                    assert need == boards * per_board[pid]
+                    assert on_hand in had[pid]
+                    assert 0 <= held <= on_hand
+        # each operation had exactly one winner
+        for ids_ in (created, done, undone, cancelled):
+            assert len(ids_) == len(set(ids_))
+        assert not set(done) & set(cancelled) and set(undone) <= set(done)
+
         builds = {b.id: b for b in list_builds(s)}
         assert sorted(builds) == sorted(created)
         for b in builds.values():
             want = ("undone" if b.id in undone else "done" if b.id in done
                     else "cancelled" if b.id in cancelled else "reserved")
             assert b.status == want, b.id
+            assert sorted((ln.part_id, ln.qty) for ln in b.lines) == sorted(
+                (pid, n * b.boards) for pid, n in per_board.items())
         # consumed exactly once: one ledger row per line for a done build, plus its undo row
-        rows = list(s.scalars(select(LedgerEntry).order_by(LedgerEntry.id)))
         for b in builds.values():
             took = [(r.part_id, r.delta) for r in rows if r.reason.startswith(f"build {b.id} done (")]
             back = [(r.part_id, r.delta) for r in rows if r.reason.startswith(f"undo build {b.id} (")]
             lines = [(ln.part_id, ln.qty) for ln in b.lines]
             assert took == ([(p, -q) for p, q in lines] if b.status in ("done", "undone") else [])
             assert back == ([(p, q) for p, q in lines] if b.status == "undone" else [])
-        # quantities: the start minus what the builds still done took
+        # quantities: the start minus what the builds still done took; none negative
         want_qty = Counter(start)
         for b in builds.values():
             if b.status == "done":
                 for ln in b.lines:
                     want_qty[ln.part_id] -= ln.qty
-        assert {p.id: p.qty for p in s.scalars(select(Part))} == dict(want_qty)
+        got_qty = {p.id: p.qty for p in s.scalars(select(Part))}
+        assert got_qty == dict(want_qty) and min(got_qty.values()) >= 0
         assert ledger_balance_ok(s) == []
         assert over_reserved(s) == []
     store.close()
+
+
+def test_a_reservation_that_loses_the_race_waits_and_names_the_short_part(url):
+    """A holds the parts' locks with the last 100 nF reserved; B's reservation waits, then is refused."""
+    ids = _stock(url)
+    d = design(ids)
+    first = open_store(url)
+    second = open_store(url, create=False)
+    entered, errors, took = threading.Event(), [], []
+
+    def loser():
+        entered.wait(30)
+        t0 = time.monotonic()
+        try:
+            with second.Session.begin() as s:
+                new_build(s, d, 1, "late")
+        except Exception as e:  # noqa: BLE001 - the test inspects it
+            errors.append(e)
+        took.append(time.monotonic() - t0)
+
+    t = threading.Thread(target=loser)
+    t.start()
+    try:
+        with first.Session.begin() as s:
+            rec = new_build(s, d, SCARCE["C-1"] // 2, "winner")  # 2 x 100 nF per board: all of C-1
+            entered.set()
+            time.sleep(1.0)  # B must be waiting on the lock now, not reading the old availability
+    finally:
+        entered.set()
+        t.join(60)
+    try:
+        assert not t.is_alive()
+        assert took[0] >= 0.5, "the second reservation did not wait for the first"
+        assert len(errors) == 1 and type(errors[0]).__name__ == "ShortageError", errors
+        msg = str(errors[0])
+        assert f"part {ids['C-1']} (capacitor 100 nF in bin C-1)" in msg
+        assert "needs 2, 0 available (12 on hand, 12 reserved by other builds): short by 2" in msg
+        assert f"part {ids['L-1']}" not in msg  # 1 mH: 6 of 8 held, 2 left: not short
+        with first.Session.begin() as s:
+            assert [b.id for b in list_builds(s)] == [rec.id]  # nothing of the loser was written
+            assert ledger_balance_ok(s) == []
+    finally:
+        first.close()
+        second.close()
 
 
 def _snapshot(store, build_id):

@@ -1,7 +1,7 @@
 """Store location and connection settings."""
 
 import pytest
-from sqlalchemy import text
+from sqlalchemy import inspect, text
 
 from picker.errors import PickerError
 from picker.store import default_db_path, open_store, resolve_db_url
@@ -28,6 +28,13 @@ def test_urls_pass_through_unchanged():
     assert "secret" not in display_url(url)
 
 
+def test_bare_postgresql_urls_get_the_installed_driver():
+    assert resolve_db_url("postgresql://sam@cabinet/picker") == "postgresql+psycopg://sam@cabinet/picker"
+    assert resolve_db_url("postgres://sam@cabinet/picker") == "postgresql+psycopg://sam@cabinet/picker"
+    assert resolve_db_url("postgresql+psycopg2://sam@cabinet/picker") == "postgresql+psycopg2://sam@cabinet/picker"
+
+
+@pytest.mark.sqlite_only
 def test_sqlite_connection_settings(store):
     with store.engine.connect() as conn:
         assert conn.exec_driver_sql("PRAGMA foreign_keys").scalar() == 1
@@ -41,7 +48,7 @@ def test_schema_change_in_a_failed_transaction_is_rolled_back(store):
             conn.execute(text("ALTER TABLE parts ADD COLUMN scratch TEXT"))
             raise RuntimeError("boom")
     with store.engine.connect() as conn:
-        cols = [r[1] for r in conn.exec_driver_sql("PRAGMA table_info(parts)")]
+        cols = [c["name"] for c in inspect(conn).get_columns("parts")]
     assert "scratch" not in cols
 
 

@@ -276,3 +276,58 @@ def test_v4_status_check_matches_the_build_statuses(store):
             conn.execute(text("INSERT INTO builds (id, name, boards, status, design, created_at) "
                               "VALUES (:i, 'b', 1, :s, '{}', '2026-01-01')"), {"i": k, "s": status})
         assert conn.execute(text("SELECT COUNT(*) FROM builds")).scalar_one() == len(STATUSES)
+
+
+# ---- v5: measurements of built boards (db/migrations/0005_measurements.py) ----------------
+
+
+def test_v4_store_is_upgraded_to_v5_with_the_measurements_table(tmp_path):
+    from picker.store.measurements import add_measurement, latest_per_board
+    from picker.store.migrate import create_fresh
+
+    path = tmp_path / "v4.sqlite"
+    engine = create_engine(f"sqlite:///{path}")
+    with engine.begin() as conn:
+        create_fresh(conn, target=4)
+        conn.execute(text("INSERT INTO builds (id, name, boards, status, design, created_at) "
+                          "VALUES (1, 'b', 2, 'done', '{}', '2026-01-01')"))
+    assert "measurements" not in inspect(engine).get_table_names()
+    engine.dispose()
+    st = open_store(resolve_db_url(str(path)))
+    try:
+        assert st.upgraded_from == 4 and st.backup_path.name.startswith("v4.v4-backup-")
+        with st.Session.begin() as s:
+            assert latest_per_board(s, 1) == []
+            add_measurement(s, 1, 86.2e3, 2.1, board=2)
+            add_measurement(s, 1, 86.4e3, None, board=2)
+            assert [(m.board, m.freq_hz) for m in latest_per_board(s, 1)] == [(2, 86.4e3)]
+    finally:
+        st.close()
+
+
+@pytest.mark.parametrize(
+    "sql",
+    [
+        "INSERT INTO measurements (build_id, board, freq_hz, created_at) VALUES (1, 0, 1000, '2026-01-01')",
+        "INSERT INTO measurements (build_id, board, freq_hz, created_at) VALUES (1, 1, 0, '2026-01-01')",
+        "INSERT INTO measurements (build_id, board, freq_hz, amplitude_vpp, created_at) "
+        "VALUES (1, 1, 1000, -1, '2026-01-01')",
+        "INSERT INTO measurements (build_id, board, created_at) VALUES (1, 1, '2026-01-01')",  # no frequency
+        "INSERT INTO measurements (build_id, board, freq_hz, created_at) VALUES (9, 1, 1000, '2026-01-01')",  # FK
+    ],
+)
+def test_v5_constraints_are_enforced(store, sql):
+    with store.engine.connect() as conn:
+        conn.execute(text("INSERT INTO builds (id, name, boards, status, design, created_at) "
+                          "VALUES (1, 'b', 1, 'reserved', '{}', '2026-01-01')"))
+        conn.execute(text("INSERT INTO measurements (build_id, board, freq_hz, created_at) "
+                          "VALUES (1, 1, 1000, '2026-01-01')"))
+        with pytest.raises(exc.IntegrityError):
+            conn.execute(text(sql))
+
+
+def test_v5_tables_match_the_models_in_nullability(store):
+    got = _columns(store.engine)
+    table = Base.metadata.tables["measurements"]
+    expected = {c.name: c.nullable for c in table.columns if not c.primary_key}
+    assert {c: n for c, n in got["measurements"].items() if c in expected} == expected
