@@ -10,7 +10,7 @@ from __future__ import annotations
 import random
 import re
 
-from sqlalchemy import select
+from sqlalchemy import func, select
 
 from picker.errors import PickerError
 from picker.store import open_store
@@ -20,10 +20,9 @@ from picker.store.builds import (
     done_build,
     list_builds,
     new_build,
-    reserved_qty,
     undo_build,
 )
-from picker.store.models import Part
+from picker.store.models import BuildLineRow, BuildRow, Part
 
 # "part 5 (capacitor 100 nF in bin C-1) at C1,CC1 needs 6, 5 available (7 on hand, 2 reserved by other builds):
 # short by 1" -> (part id, need, available, on hand, reserved, short)
@@ -33,10 +32,17 @@ STATUS_RE = re.compile(r"^build \d+ \(.*\) is (reserved|done|cancelled|undone): 
 
 
 def over_reserved(session) -> list[str]:
-    """Parts whose reserved total exceeds the quantity on hand (should be none)."""
-    held = reserved_qty(session)
-    parts = session.scalars(select(Part).where(Part.id.in_(list(held))))
-    return [f"part {p.id}: {held[p.id]} reserved, {p.qty} on hand" for p in parts if held[p.id] > p.qty]
+    """Parts whose reserved total exceeds the quantity on hand (should be none).
+
+    One statement, so that both figures come from one snapshot: on a server at READ
+    COMMITTED, two statements can straddle another worker's ``build done`` (its build
+    leaves the reserved total and its pieces leave ``qty`` in one commit) and show a
+    shortfall that never existed."""
+    held = (select(BuildLineRow.part_id.label("part_id"), func.sum(BuildLineRow.qty).label("held"))
+            .join(BuildRow, BuildRow.id == BuildLineRow.build_id)
+            .where(BuildRow.status == "reserved").group_by(BuildLineRow.part_id).subquery())
+    rows = session.execute(select(Part.id, Part.qty, held.c.held).join(held, held.c.part_id == Part.id)).all()
+    return [f"part {pid}: {h} reserved, {q} on hand" for pid, q, h in rows if h > q]
 
 
 def worker(url: str, seed: int, n_ops: int, design: dict, name: str, weights=(5, 1, 2, 1)) -> dict:
