@@ -362,3 +362,13 @@ def to_rkm(value: float, kind: str, digits: int = 3) -> str:
     if not fp and len(ip) == 1:
         fp = "0"
     return f"{ip}{letter}{fp}"
+
+
+_DIGIT_RUNS = re.compile(r"(\d+)")
+
+
+def natural_key(text: str | None) -> tuple:
+    """Sort key for labels such as bins and designators: digit runs compare as numbers, the
+    rest case-blind, so ``A2`` comes before ``A10`` (how a person walks a cabinet)."""
+    return tuple((0, int(t), "") if t.isdigit() else (1, 0, t.casefold())
+                 for t in _DIGIT_RUNS.split(text or "") if t)

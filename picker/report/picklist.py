@@ -25,14 +25,13 @@ import csv
 import html
 import io
 import math
-import re
 import textwrap
 from dataclasses import dataclass
 
 import numpy as np
 
 from picker.builds.model import BuildLine, BuildRecord, design_from_json
-from picker.units import format_eng, format_value, to_rkm
+from picker.units import format_eng, format_value, natural_key, to_rkm
 
 FORMATS = ("text", "csv", "md", "html")
 KIND_ORDER = ("resistor", "capacitor", "inductor", "npn")
@@ -59,12 +58,6 @@ SAFETY_TEXT = (
 
 
 # ---- the rows ---------------------------------------------------------------
-
-
-def natural_key(text: str | None) -> tuple:
-    """Sort key for bin labels: digit runs as numbers, the rest case-blind (``A2`` < ``A10``)."""
-    parts = re.split(r"(\d+)", text or "")
-    return tuple(int(p) if i % 2 else p.casefold() for i, p in enumerate(parts))
 
 
 def _kind_rank(kind: str) -> int:

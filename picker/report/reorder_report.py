@@ -3,13 +3,11 @@ the stock left, as rich text, JSON-ready dicts and CSV rows."""
 
 from __future__ import annotations
 
-import re
-
 from rich.console import Group
 from rich.table import Table
 from rich.text import Text
 
-from picker.units import format_eng, format_value
+from picker.units import format_eng, format_value, natural_key
 
 #: CSV columns of the shopping list, in order.
 CSV_COLUMNS = ("supplier", "sku", "kind", "value", "tolerance", "voltage_v", "power_w", "dielectric", "dcr_ohm",
@@ -37,11 +35,6 @@ def _ratings(it) -> str:
     if it.get("dielectric"):
         out.append(str(it.get("dielectric")))
     return " ".join(out)
-
-
-def _natural(text: str) -> list:
-    """Natural sort key: A2 before A10."""
-    return [int(t) if t.isdigit() else t.lower() for t in re.split(r"(\d+)", text or "")]
 
 
 def _target_text(t) -> str:
@@ -144,7 +137,7 @@ def plan_report(p, targets) -> Group:
     if p.stock_used:
         items.append(Text("stock left after every build: "
                           + ", ".join(f"{s.bin} {_value_text(s.kind, s.value, s.name)} {s.qty}->{s.qty - u}"
-                                      for s, u in sorted(p.stock_used, key=lambda su: _natural(su[0].bin))),
+                                      for s, u in sorted(p.stock_used, key=lambda su: natural_key(su[0].bin))),
                           style="dim"))
     items.append(Text(CAUTION))
     return Group(*items)

@@ -2,21 +2,15 @@
 
 from __future__ import annotations
 
-import re
 
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from picker.errors import PickerError
+from picker.units import natural_key  # noqa: F401  (re-exported by picker.store)
 from picker.store.models import LedgerEntry, Part
 from picker.store.spec import KINDS, RATINGS
 
-_DIGITS = re.compile(r"(\d+)")
-
-
-def natural_key(text: str) -> tuple:
-    """Sort key putting ``A2`` before ``A10`` (digit runs compare as numbers)."""
-    return tuple((0, int(t), "") if t.isdigit() else (1, 0, t.casefold()) for t in _DIGITS.split(text) if t)
 
 
 def list_parts(
