@@ -48,7 +48,7 @@ from typing import Mapping
 import picker
 from picker.errors import PickerError
 from picker.planning.catalog import ITEM_FIELDS, CatalogItem, Supplier
-from picker.store.csvio import _read_table
+from picker.store.csvio import _read_table, header_errors, raise_if_errors
 from picker.store.spec import MAX_TEXT, FieldError, parse_part
 
 #: Columns of a catalog CSV, in the order the demo files use.
@@ -221,27 +221,8 @@ def read_catalog_csv(path: str | os.PathLike, supplier: str) -> CatalogFile:
     path = Path(path)
     _nonblank_file(path)
     header, records = _read_table(path)
-    errors: list[str] = []
-    accepted = ", ".join(CATALOG_COLUMNS)
-    seen: set[str] = set()
-    for i, name in enumerate(header, start=1):
-        if name == "":
-            errors.append(f"row 1, column {i}: blank column name (expected one of: {accepted})")
-        elif name in _STOCK_ONLY:
-            errors.append(
-                f"row 1, column {name}: unknown column ({name} is a stock CSV column; a catalog has none; "
-                f"expected one of: {accepted})"
-            )
-        elif name not in CATALOG_COLUMNS:
-            errors.append(f"row 1, column {name}: unknown column (expected one of: {accepted})")
-        elif name in seen:
-            errors.append(f"row 1, column {name}: column appears twice")
-        seen.add(name)
-    for name in CATALOG_REQUIRED:
-        if name not in seen:
-            errors.append(f"row 1, column {name}: required column missing (required: {', '.join(CATALOG_REQUIRED)})")
-    if not records and not errors:
-        errors.append("no data rows after the header")
+    errors = header_errors(header, records, CATALOG_COLUMNS, CATALOG_REQUIRED,
+                            {c: f"{c} is a stock CSV column; a catalog has none" for c in _STOCK_ONLY})
     index = {name: i for i, name in reversed(list(enumerate(header))) if name in CATALOG_COLUMNS}
     rows: list[CatalogRow] = []
     first_line: dict[str, int] = {}
@@ -258,11 +239,7 @@ def read_catalog_csv(path: str | os.PathLike, supplier: str) -> CatalogFile:
             errors.extend(f"row {line}, column {p.column}: {p.message}" for p in problems)
         else:
             rows.append(CatalogRow(line, item))
-    if errors:
-        n_bad = len({e.split(",")[0] for e in errors})
-        raise PickerError(
-            "\n".join([f"{path}: {len(errors)} problem(s) in {n_bad} row(s); nothing imported", *errors])
-        )
+    raise_if_errors(path, errors)
     return CatalogFile(path, supplier, tuple(rows))
 
 

@@ -90,22 +90,7 @@ def read_stock_csv(path: str | os.PathLike) -> StockFile:
     """
     path = Path(path)
     header, records = _read_table(path)
-    errors: list[str] = []
-    accepted = ", ".join(COLUMNS)
-    seen: set[str] = set()
-    for i, name in enumerate(header, start=1):
-        if name == "":
-            errors.append(f"row 1, column {i}: blank column name (expected one of: {accepted})")
-        elif name not in COLUMNS:
-            errors.append(f"row 1, column {name}: unknown column (expected one of: {accepted})")
-        elif name in seen:
-            errors.append(f"row 1, column {name}: column appears twice")
-        seen.add(name)
-    for name in REQUIRED:
-        if name not in seen:
-            errors.append(f"row 1, column {name}: required column missing (required: {', '.join(REQUIRED)})")
-    if not records and not errors:
-        errors.append("no data rows after the header")
+    errors = header_errors(header, records, COLUMNS, REQUIRED)
     index = {name: i for i, name in reversed(list(enumerate(header))) if name in COLUMNS}
     rows: list[StockRow] = []
     for line, cells in records:
@@ -114,12 +99,42 @@ def read_stock_csv(path: str | os.PathLike) -> StockFile:
             errors.extend(f"row {line}, column {p.column}: {p.message}" for p in problems)
         else:
             rows.append(StockRow(line, spec, qty))
+    raise_if_errors(path, errors)
+    return StockFile(path, tuple(rows))
+
+
+def header_errors(header: list[str], records: list, columns, required, misplaced: dict | None = None) -> list[str]:
+    """Problems of a CSV header (blank, unknown, repeated or missing columns) and of an empty
+    body, one line each; ``misplaced`` maps a column name that belongs to another CSV format
+    to the reason shown for it.  Shared by the stock and the catalog formats."""
+    errors: list[str] = []
+    accepted = ", ".join(columns)
+    seen: set[str] = set()
+    for i, name in enumerate(header, start=1):
+        if name == "":
+            errors.append(f"row 1, column {i}: blank column name (expected one of: {accepted})")
+        elif misplaced and name in misplaced:
+            errors.append(f"row 1, column {name}: unknown column ({misplaced[name]}; expected one of: {accepted})")
+        elif name not in columns:
+            errors.append(f"row 1, column {name}: unknown column (expected one of: {accepted})")
+        elif name in seen:
+            errors.append(f"row 1, column {name}: column appears twice")
+        seen.add(name)
+    for name in required:
+        if name not in seen:
+            errors.append(f"row 1, column {name}: required column missing (required: {', '.join(required)})")
+    if not records and not errors:
+        errors.append("no data rows after the header")
+    return errors
+
+
+def raise_if_errors(path: Path, errors: list[str]) -> None:
+    """One PickerError listing every problem of the file (nothing has been written)."""
     if errors:
         n_bad = len({e.split(",")[0] for e in errors})
         raise PickerError(
             "\n".join([f"{path}: {len(errors)} problem(s) in {n_bad} row(s); nothing imported", *errors])
         )
-    return StockFile(path, tuple(rows))
 
 
 @dataclass
