@@ -142,23 +142,11 @@ class SupplierRow(Base):
     items: Mapped[list[CatalogItemRow]] = relationship(back_populates="supplier", order_by="CatalogItemRow.id")
 
 
-class CatalogItemRow(Base):
-    """One purchasable item of a supplier (one catalog CSV row)."""
+class PartAttributes:
+    """What a part is, besides its kind (SI units; None when unknown): the columns a catalog
+    item and an order line share with the stock's parts (``parts`` declares its own, in
+    the order of migration 0001)."""
 
-    __tablename__ = "catalog_items"
-    __table_args__ = (
-        UniqueConstraint("supplier_id", "sku", name="uq_catalog_items_sku"),
-        CheckConstraint("pack >= 1", name="ck_catalog_items_pack"),
-        CheckConstraint("min_order >= 1", name="ck_catalog_items_min_order"),
-        CheckConstraint(
-            "kind IN ('resistor', 'capacitor', 'inductor', 'npn')", name="ck_catalog_items_kind"
-        ),
-    )
-
-    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
-    supplier_id: Mapped[int] = mapped_column(ForeignKey("suppliers.id"), index=True)
-    sku: Mapped[str] = mapped_column(String(64))
-    kind: Mapped[str] = mapped_column(String(16))
     value: Mapped[float | None] = mapped_column(Double)
     tolerance: Mapped[float | None] = mapped_column(Double)
     voltage_v: Mapped[float | None] = mapped_column(Double)
@@ -175,6 +163,25 @@ class CatalogItemRow(Base):
     vaf_v: Mapped[float | None] = mapped_column(Double)
     vceo_v: Mapped[float | None] = mapped_column(Double)
     pd_w: Mapped[float | None] = mapped_column(Double)
+
+
+class CatalogItemRow(PartAttributes, Base):
+    """One purchasable item of a supplier (one catalog CSV row)."""
+
+    __tablename__ = "catalog_items"
+    __table_args__ = (
+        UniqueConstraint("supplier_id", "sku", name="uq_catalog_items_sku"),
+        CheckConstraint("pack >= 1", name="ck_catalog_items_pack"),
+        CheckConstraint("min_order >= 1", name="ck_catalog_items_min_order"),
+        CheckConstraint(
+            "kind IN ('resistor', 'capacitor', 'inductor', 'npn')", name="ck_catalog_items_kind"
+        ),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=True)
+    supplier_id: Mapped[int] = mapped_column(ForeignKey("suppliers.id"), index=True)
+    sku: Mapped[str] = mapped_column(String(64))
+    kind: Mapped[str] = mapped_column(String(16))
     pack: Mapped[int] = mapped_column(Integer)
     min_order: Mapped[int] = mapped_column(Integer)
 
@@ -217,7 +224,7 @@ class Order(Base):
     lines: Mapped[list[OrderLine]] = relationship(back_populates="order", order_by="OrderLine.id")
 
 
-class OrderLine(Base):
+class OrderLine(PartAttributes, Base):
     """One line of an order: a copy of the item bought (no link to the catalog, which may be re-imported)."""
 
     __tablename__ = "order_lines"
@@ -235,22 +242,6 @@ class OrderLine(Base):
     supplier: Mapped[str] = mapped_column(String(64))
     sku: Mapped[str] = mapped_column(String(64))
     kind: Mapped[str] = mapped_column(String(16))
-    value: Mapped[float | None] = mapped_column(Double)
-    tolerance: Mapped[float | None] = mapped_column(Double)
-    voltage_v: Mapped[float | None] = mapped_column(Double)
-    power_w: Mapped[float | None] = mapped_column(Double)
-    dielectric: Mapped[str | None] = mapped_column(String(16))
-    dcr_ohm: Mapped[float | None] = mapped_column(Double)
-    isat_a: Mapped[float | None] = mapped_column(Double)
-    name: Mapped[str | None] = mapped_column(String(64))
-    hfe_min: Mapped[float | None] = mapped_column(Double)
-    hfe_max: Mapped[float | None] = mapped_column(Double)
-    vbe_v: Mapped[float | None] = mapped_column(Double)
-    ft_hz: Mapped[float | None] = mapped_column(Double)
-    cob_f: Mapped[float | None] = mapped_column(Double)
-    vaf_v: Mapped[float | None] = mapped_column(Double)
-    vceo_v: Mapped[float | None] = mapped_column(Double)
-    pd_w: Mapped[float | None] = mapped_column(Double)
     packs: Mapped[int] = mapped_column(Integer)
     qty: Mapped[int] = mapped_column(Integer)
     cost: Mapped[float] = mapped_column(Double)
