@@ -194,20 +194,35 @@ def key_of(kind: str, info, value, name=None) -> Key:
                (info.dielectric or "").lower() in STABLE_DIELECTRICS, float(info.dcr_ohm or 0.0), None)
 
 
-def fits(key: Key, s: Source) -> bool:
-    """Whether source ``s`` may fill ``key`` (same value, at least as tight and as well rated)."""
-    if s.kind != key.kind:
-        return False
-    if key.kind == "npn":
-        return s.name is not None and s.name.casefold() == key.name
-    if not np.isclose(s.value, key.value, rtol=SAME_VALUE, atol=0.0) or s.tol > key.tol + 1e-12:
-        return False
-    for need, have in ((key.voltage_v, s.voltage_v), (key.power_w, s.power_w)):
-        if np.isfinite(need) and not (np.isfinite(have) and have >= need):
-            return False
-    if key.stable and s.dielectric not in STABLE_DIELECTRICS:
-        return False
-    return s.dcr_ohm <= key.dcr_ohm * (1 + 1e-9) + 1e-12
+def fitting_sources(keys: list[Key], sources: list[Source]) -> tuple:
+    """Per key, the indices of the sources that may fill it: same kind and value, at least
+    as tight, at least as well rated where the key's line was rated, a stable dielectric
+    where the key's was, a DC resistance no higher; a transistor by profile name.  One
+    array comparison over every source per key."""
+    kind = np.array([s.kind for s in sources], dtype=object)
+    value = np.array([np.nan if s.value is None else s.value for s in sources], dtype=float)
+    tol = np.array([s.tol for s in sources], dtype=float)
+    volts = np.array([s.voltage_v for s in sources], dtype=float)
+    watts = np.array([s.power_w for s in sources], dtype=float)
+    stable = np.isin(np.array([s.dielectric for s in sources], dtype=object), STABLE_DIELECTRICS)
+    dcr = np.array([s.dcr_ohm for s in sources], dtype=float)
+    name = np.array([(s.name or "").casefold() for s in sources], dtype=object)
+    out = []
+    with np.errstate(invalid="ignore"):
+        for key in keys:
+            ok = kind == key.kind
+            if key.kind == "npn":
+                ok &= name == key.name
+            else:
+                ok &= np.isclose(value, key.value, rtol=SAME_VALUE, atol=0.0) & (tol <= key.tol + 1e-12)
+                for need, have in ((key.voltage_v, volts), (key.power_w, watts)):
+                    if np.isfinite(need):
+                        ok &= have >= need  # NaN (unrated) compares False
+                if key.stable:
+                    ok &= stable
+                ok &= dcr <= key.dcr_ohm * (1 + 1e-9) + 1e-12
+            out.append(tuple(int(k) for k in np.flatnonzero(ok)))
+    return tuple(out)
 
 
 def plan(drawer: Drawer, suppliers: tuple, targets: list[Target], base: FindSpec,
@@ -251,7 +266,7 @@ def plan(drawer: Drawer, suppliers: tuple, targets: list[Target], base: FindSpec
         return Plan("infeasible", (), (), {}, float("inf"), float("inf"), len(options), tuple(per_build),
                     tuple(reasons), {})
     tick("planning the purchase", len(targets) / (len(targets) + 1))
-    key_sources = tuple(tuple(k for k, s in enumerate(sources) if fits(key, s)) for key in keys)
+    key_sources = fitting_sources(keys, sources)
     names = [s.name for s in suppliers]
     prob = Problem(len(targets), tuple(options), key_sources, np.array([s.qty for s in stock], dtype=np.int64),
                    tuple(items), np.array([names.index(it.supplier) for it in items], dtype=np.int64),
