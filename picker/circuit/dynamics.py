@@ -568,6 +568,10 @@ def balance(mdl: Model, u: np.ndarray, iterations: int = 30, start=None, with_st
         d1 = np.clip((-f1 * a22 + f2 * a12) / det, -LOG_STEP, LOG_STEP)
         d2 = np.clip((-a11 * f2 + a21 * f1) / det, -LOG_STEP_R, LOG_STEP_R)
         old = norm(f1, f2, lr)
+        # a converged row stays where it is while others iterate: a row's result must not
+        # depend on which other rows share its batch (further steps could leave its branch)
+        conv = old < 1e-9
+        d1, d2 = np.where(conv, 0.0, d1), np.where(conv, 0.0, d2)
         step = np.ones(n)
         nf, nr = lf + step * d1, np.clip(lr + step * d2, -700.0, 5.0)
         valid[:] = False

@@ -119,3 +119,21 @@ def test_classify_periodic_collapse_is_bursting_with_its_period():
     c = classify(t, env, 0.0, 1e-5)
     assert c.bursts and c.settle_time_s is None
     assert c.burst_period_s == pytest.approx(2e-3, rel=1e-3)
+
+
+def test_a_rows_verdict_does_not_depend_on_its_batch_mates():
+    """predict on a batch gives each row what it gives that row alone.  The design (found
+    by find on a small drawer, where this once failed) at its hFE and temperature corners:
+    the nominal row converges its bias balance in fewer Newton steps than its batch mates,
+    and further steps once moved it to another branch (bursting in the batch, settling alone)."""
+    from picker.circuit.evaluate import corner_batch
+
+    d = make_design("colpitts-ce", {"L1": 470e-6, "C1": 10e-9, "C2": 100e-9, "R1": 4.7e3, "R2": 4.7e3,
+                                    "RE": 10e3, "RC": 4.7e3, "CC1": 10e-9, "CC2": 47e-9, "CE": 1e-6}, "breadboard")
+    batch, _ = corner_batch([d], (d.temp_c, 0.0, 50.0))
+    res = engine.evaluate_batch(batch)
+    together = dy.predict(batch, res)
+    for k in range(batch.n):
+        one = dy.predict(batch.take(np.array([k])), engine.evaluate_batch(batch.take(np.array([k]))))
+        assert np.array_equal(one.amplitude_settles[:1], together.amplitude_settles[k:k + 1], equal_nan=True), k
+        assert one.drive_v[0] == pytest.approx(together.drive_v[k], rel=1e-9), k
