@@ -51,7 +51,8 @@ RC_PER_CORE = 6
 RC_PAIRS_LIMIT = 200_000
 #: Work limits of the bias enumeration for large drawers (an E96 drawer has ~480
 #: resistor values): divider pairs above DIVIDER_LIMIT keep the cheapest per 2 % step
-#: of VB and RTh; RE1 values above RE1_MAX the cheapest per 20 % step; RE choices above
+#: of VB and 10 % step of RTh (the RTh step of the core buckets, CORE_LIMIT); RE1 values
+#: above RE1_MAX the cheapest per 20 % step; RE choices above
 #: RE_PAIRS_LIMIT at most RE_PER_CORE per (divider, RE1), spread over the window.
 DIVIDER_LIMIT = 20_000
 RE1_MAX = 24
@@ -72,12 +73,16 @@ def screen_window(freq_hz: float, tol: float, slack: float = FREQ_SLACK) -> tupl
 
 def expand_spread(start: np.ndarray, stop: np.ndarray, limit: int, per: int) -> tuple[np.ndarray, np.ndarray]:
     """:func:`expand`, but when it would give more than ``limit`` pairs, at most about
-    ``per`` inner indices per outer one, evenly spread over its range."""
-    outer, inner = expand(start, stop)
-    if outer.size > limit:
-        stride = np.maximum(1, -(-(stop - start) // per))
-        spread = (inner - start[outer]) % stride[outer] == 0
-        outer, inner = outer[spread], inner[spread]
+    ``per`` inner indices per outer one, evenly spread over its range (every
+    ``ceil(count / per)``-th from its start).  Only the pairs kept are ever formed."""
+    count = np.maximum(stop - start, 0)
+    if int(count.sum()) <= limit:
+        return expand(start, stop)
+    stride = np.maximum(1, -(-count // per))
+    picks = -(-count // stride)
+    outer = np.repeat(np.arange(start.size), picks)
+    offsets = np.cumsum(picks) - picks
+    inner = start[outer] + stride[outer] * (np.arange(outer.size) - offsets[outer])
     return outer, inner
 
 
@@ -97,18 +102,45 @@ def _between(sorted_values: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> tuple
 
 @dataclass(frozen=True)
 class DeviceCaps:
-    """Transistor capacitances the screen adds to the tank, farad (at the middle of the current window)."""
+    """Transistor capacitances the screen adds to the tank, farad (at the middle of the current
+    window), and the two parts of C_pi: transit time tf_s (times gm) and the junction's cj_f."""
 
     cpi_f: float
     cmu_f: float
+    tf_s: float = 0.0
+    cj_f: float = 0.0
 
     @classmethod
     def estimate(cls, npn: NpnProfile, ie_a: float) -> "DeviceCaps":
         m = model_from_profile(np.array([npn.hfe_nominal]), np.array([npn.vbe_v]), np.array([npn.ft_hz]),
                                np.array([npn.cob_f]), np.array([npn.vaf_v]))
         gm = ie_a / HAND_VT_V
-        cpi = float(m.tf_s[0] * gm + junction_c(m.cje_f, np.array([npn.vbe_v]), VJE_V, MJE)[0])
-        return cls(cpi, float(npn.cob_f))
+        cj = float(junction_c(m.cje_f, np.array([npn.vbe_v]), VJE_V, MJE)[0])
+        return cls(float(m.tf_s[0] * gm + cj), float(npn.cob_f), float(m.tf_s[0]), cj)
+
+
+def loaded_freq_hz(l_h, dcr_ohm, c1_f, c2_f, g1_s, g2_s, c3_f=None):
+    """Loop frequency of the split-capacitor tank loaded by conductances ``g1_s`` (collector
+    side, across ``c1_f``) and ``g2_s`` (base side, across ``c2_f``), the coil's loss as
+    its series ``dcr_ohm``, and for a Clapp ``c3_f`` in series with the coil.
+
+    Two-node analysis of the loop cut at the transistor's current source: the transfer
+    to the base is 1/D with D = Y1 + Y2 + Y1 Y2 Z (Y1, Y2 the node admittances, Z the
+    coil branch), and the loop's phase zero is Im D = 0.  For the Colpitts that gives
+    omega^2 = (C1 + C2 + L G1 G2 + r (G1 C2 + G2 C1)) / (L C1 C2) (derived here by hand;
+    with no loading it is the textbook 1/(L C1 C2 / (C1 + C2))); for the Clapp the same
+    with Z = r + j(omega L - 1/(omega C3)) is a quadratic in omega^2, whose larger root is
+    the tank's.  Used only to order the screen's candidates; the engine decides.
+    """
+    lg = l_h * g1_s * g2_s
+    rg = dcr_ohm * (g1_s * c2_f + g2_s * c1_f)
+    if c3_f is None:
+        w2 = (c1_f + c2_f + lg + rg) / (l_h * c1_f * c2_f)
+    else:
+        a = l_h * c1_f * c2_f * c3_f
+        b = c3_f * (c1_f + c2_f) + c1_f * c2_f + c3_f * (lg + rg)
+        w2 = (b + np.sqrt(np.maximum(b * b - 4 * a * g1_s * g2_s, 0.0))) / (2 * a)
+    return np.sqrt(w2) / (2 * np.pi)
 
 
 @dataclass(frozen=True)
@@ -289,9 +321,9 @@ def biases(res: Offer, npn: NpnProfile, vcc_v: float, ie_lo_a: float, ie_hi_a: f
     rth = r1 * r2 / (r1 + r2)
     ok = (vth >= npn.vbe_v + VB_MIN_ABOVE_VBE_V) & (vth <= VB_MAX_FRACTION * vcc_v) & (vcc_v / (r1 + r2) <= ie_hi_a)
     i1, i2, vth, rth = i1[ok], i2[ok], vth[ok], rth[ok]
-    if i1.size > DIVIDER_LIMIT:  # the cheapest pair per 2 % step of VB and of RTh
+    if i1.size > DIVIDER_LIMIT:  # the cheapest pair per 2 % step of VB and 10 % step of RTh
         keep = cheapest_per_step(res.cost[i1] + res.cost[i2],
-                                  ((np.log(vth), np.log(1.02)), (np.log(rth), np.log(1.02))))
+                                  ((np.log(vth), np.log(1.02)), (np.log(rth), np.log(1.1))))
         i1, i2, vth, rth = i1[keep], i2[keep], vth[keep], rth[keep]
     # RE1: none (-1) or an on-hand value in RE1_RANGE_OHM (common emitter only)
     opts = np.flatnonzero((v >= RE1_RANGE_OHM[0]) & (v <= RE1_RANGE_OHM[1])) if common_emitter else np.zeros(0, int)

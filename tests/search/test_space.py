@@ -8,7 +8,8 @@ import itertools
 
 import numpy as np
 import pandas as pd
-from hypothesis import given, settings
+import pytest
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from picker.search import space
@@ -84,6 +85,24 @@ def test_expand_equals_nested_loop(pairs):
     assert list(zip(o.tolist(), i.tolist())) == want
 
 
+@settings(max_examples=80, deadline=None)
+@given(st.lists(st.tuples(st.integers(0, 40), st.integers(0, 40)), max_size=20), st.integers(0, 60), st.integers(1, 9))
+def test_expand_spread_equals_nested_loop(pairs, limit, per):
+    """Within the limit every pair; past it every ceil(count/per)-th inner index of each
+    outer one from its start (at most ``per`` each), written out as a nested loop."""
+    start = np.array([min(a, b) for a, b in pairs], dtype=np.int64)
+    stop = np.array([max(a, b) for a, b in pairs], dtype=np.int64)
+    o, i = space.expand_spread(start, stop, limit, per)
+    total = int((stop - start).sum())
+    want = []
+    for k in range(len(pairs)):
+        step = 1 if total <= limit else max(1, -(-(stop[k] - start[k]) // per))
+        want += [(k, j) for j in range(start[k], stop[k], step)]
+    assert list(zip(o.tolist(), i.tolist())) == want
+    if total > limit:
+        assert all(c <= per for c in np.bincount(o, minlength=len(pairs)).tolist())
+
+
 @settings(max_examples=60, deadline=None)
 @given(st.lists(st.tuples(st.sampled_from([1e3, 2.2e3, 4.7e3]), st.integers(0, 5), st.sampled_from([0.01, 0.02, 0.05])),
                 min_size=1, max_size=12), st.integers(1, 4))
@@ -109,3 +128,33 @@ def test_pairs_series_and_parallel_values():
     assert got[320_000][0] == 2  # parallel
     assert got[440_000][0] == 2  # 220p || 220p: the line holds 4, twice the need
     assert 200_000 not in got  # 100p || 100p: only 1 on hand
+
+
+@settings(max_examples=40, deadline=None)
+@given(st.floats(1e-6, 1e-2), st.floats(0.0, 30.0), st.floats(10e-12, 100e-9), st.floats(0.05, 1.0),
+       st.floats(1e-6, 1e-2), st.floats(1e-6, 1e-2), st.booleans())
+def test_loaded_frequency_solves_the_two_node_phase_condition(l_h, dcr, c1, fb, g1, g2, clapp):
+    """loaded_freq_hz against a direct root of Im(Y1 + Y2 + Y1 Y2 Z) = 0 (brentq on the
+    complex node admittances, written out here), and with no loading against the textbook
+    Colpitts resonance 1/(2 pi sqrt(L C1 C2 / (C1 + C2)))."""
+    from scipy.optimize import brentq
+
+    c2 = c1 / fb
+    c3 = 0.3 * c1 if clapp else None
+
+    def im_d(w):
+        z = dcr + 1j * w * l_h + (1 / (1j * w * c3) if clapp else 0)
+        y1, y2 = g1 + 1j * w * c1, g2 + 1j * w * c2
+        return (y1 + y2 + y1 * y2 * z).imag
+
+    cs = 1 / (1 / c1 + 1 / c2 + (1 / c3 if clapp else 0))
+    w0 = 1 / np.sqrt(l_h * cs)
+    # the tank's root lies above the unloaded resonance (loading only raises it) and below 10x
+    assume(im_d(w0 * 0.999) * im_d(w0 * 10) < 0)  # else no root in the bracket (heavily damped)
+    w = brentq(im_d, w0 * 0.999, w0 * 10, xtol=1e-6, rtol=1e-13)
+    got = space.loaded_freq_hz(np.array([l_h]), np.array([dcr]), np.array([c1]), np.array([c2]),
+                               np.array([g1]), np.array([g2]), None if c3 is None else np.array([c3]))[0]
+    assert got == pytest.approx(w / (2 * np.pi), rel=1e-7)
+    if not clapp:
+        bare = space.loaded_freq_hz(l_h, 0.0, c1, c2, 0.0, 0.0)
+        assert bare == pytest.approx(1 / (2 * np.pi * np.sqrt(l_h * c1 * c2 / (c1 + c2))), rel=1e-12)
