@@ -145,6 +145,17 @@ def check_designs(designs: list[Design], temps: tuple[float, ...]) -> list[Evalu
     return out
 
 
+def loaded_q_of(batch: DesignBatch, hy: mna.Hybrid, freq_hz: np.ndarray) -> np.ndarray:
+    """The tank's loaded Q per design: from the natural frequency nearest ``freq_hz`` of the
+    network with the transistor's gm removed (its resistances and capacitances stay),
+    |Im s| / (2 |Re s|); inf where the pole is undamped or not found."""
+    mat = mna.assemble(batch, hy)
+    pole = dominant_pair(mna.natural_frequencies(mat, np.zeros(batch.n)), 2 * np.pi * np.asarray(freq_hz, float))
+    ok = np.isfinite(pole.real) & (pole.real != 0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(ok, np.abs(pole.imag) / (2 * np.abs(pole.real)), np.inf)
+
+
 def _opt_bool(x: float) -> bool | None:
     return None if not np.isfinite(x) else bool(x > 0.5)
 
@@ -182,11 +193,8 @@ def _summarise(design: Design, batch: DesignBatch, res: BatchResult, combos, dyn
             coupling[p.ref] = (1.0 / (2 * np.pi * f * design.values[p.ref]), against[p.feeds])
 
     one = batch.take(np.array([i]))
-    mat = mna.assemble(one, mna.Hybrid(*(np.asarray(getattr(hy, k))[[i]] for k in
-                                          ("gm_s", "gpi_s", "go_s", "cpi_f", "cmu_f"))))
-    s0 = mna.natural_frequencies(mat, np.zeros(1))
-    pole = dominant_pair(s0, np.array([2 * np.pi * f]))[0]
-    loaded_q = float(abs(pole.imag) / (2 * abs(pole.real))) if np.isfinite(pole.real) and pole.real != 0 else float("inf")
+    loaded_q = float(loaded_q_of(one, mna.Hybrid(*(np.asarray(getattr(hy, k))[[i]] for k in
+                                                   mna.Hybrid.__dataclass_fields__)), np.array([f]))[0])
 
     hfe_min = design.npn.hfe_min
     stiff = (rbias / (hfe_min + 1)) <= STIFF_FRACTION * re

@@ -41,7 +41,9 @@ a result", which does not yet state the Clapp and Hartley tank rules):
   the two end capacitances (stray + Cmu and stray + Cpi + Cmu) in series
   across it;
 * frequency within tolerance, nominal margin and tolerance-derated worst-case
-  margin at least ``min_margin``, transistor not saturated.
+  margin at least ``min_margin``, transistor not saturated;
+* the tank's loaded Q at nominal (``evaluate.loaded_q_of``, the figure the full
+  check judges) at least ``checks.MIN_LOADED_Q``.
 
 Slow on purpose; used by tests/search/test_exact.py and bench/find.py.
 """
@@ -53,9 +55,10 @@ from types import SimpleNamespace
 import numpy as np
 
 from picker.circuit.bias import HAND_VT_V
-from picker.circuit.checks import CAP_DERATE, COUPLING_FRACTION
+from picker.circuit.checks import CAP_DERATE, COUPLING_FRACTION, MIN_LOADED_Q
 from picker.circuit.design import DesignBatch, style_stray_f
 from picker.circuit.engine import small_signal
+from picker.circuit.evaluate import loaded_q_of
 from picker.circuit.topology import get_topology
 from picker.search import space
 from picker.search.stock import STABLE_DIELECTRICS
@@ -194,8 +197,9 @@ def _one(drawer, spec, npn, topology):
     n = it.size
     topo = get_topology(topology)
 
-    def engine(rows, values, hfe, temp_c):
-        """Loop frequency, margin and saturation of ``rows`` (in chunks, to bound the memory)."""
+    def engine(rows, values, hfe, temp_c, with_q=False):
+        """Loop frequency, margin, saturation and (``with_q``) loaded tank Q of ``rows`` (in
+        chunks, to bound the memory)."""
         parts = []
         for start in range(0, rows.size, ENGINE_CHUNK):
             sub = rows[start:start + ENGINE_CHUNK]
@@ -205,18 +209,19 @@ def _one(drawer, spec, npn, topology):
                             ft_hz=full(p.ft_hz), cob_f=full(p.cob_f), vaf_v=full(p.vaf_v), vcc_v=full(vcc),
                             temp_c=full(temp_c), stray_f=full(style_stray_f(spec.style)))
             ss = small_signal(b)  # global phase-zero search
-            parts.append((ss.freq_loop_hz, ss.margin, ss.dc.saturated))
-        f, m, sat = (np.concatenate(x) for x in zip(*parts))
-        return SimpleNamespace(freq_loop_hz=f, margin=m, saturated=sat)
+            q = loaded_q_of(b, ss.hybrid, ss.freq_loop_hz) if with_q else np.zeros(sub.size)
+            parts.append((ss.freq_loop_hz, ss.margin, ss.dc.saturated, q))
+        f, m, sat, q = (np.concatenate(x) for x in zip(*parts))
+        return SimpleNamespace(freq_loop_hz=f, margin=m, saturated=sat, loaded_q=q)
 
     rows = np.arange(n)
-    ss = engine(rows, v, p.hfe_nominal, spec.nominal_c)
+    ss = engine(rows, v, p.hfe_nominal, spec.nominal_c, with_q=True)
     err = ss.freq_loop_hz / spec.freq_hz - 1
     caps = space.DeviceCaps.estimate(p, float(np.sqrt(spec.ie_a[0] * spec.ie_a[1])))
     f_tank = _tank_resonance_hz(topology, v, style_stray_f(spec.style), caps)
     pull = ss.freq_loop_hz / f_tank - 1
     good = (np.isfinite(ss.freq_loop_hz) & (np.abs(err) <= spec.tol) & (ss.margin >= spec.min_margin)
-            & (np.abs(pull) <= space.FREQ_SLACK) & ~ss.saturated)
+            & (np.abs(pull) <= space.FREQ_SLACK) & ~ss.saturated & (ss.loaded_q >= MIN_LOADED_Q))
     rows = rows[good]
     if rows.size == 0:
         return []

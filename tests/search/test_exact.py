@@ -3,7 +3,7 @@
 The reference (tests/search/brute.py) enumerates the full product of every
 line at every position and runs the engine on every design that meets the
 stated rules; the search decomposes, screens and binary-searches.  Below the
-work limits (space.CORE_LIMIT, RC_PAIRS_LIMIT, find.TANK_MAX, BIAS_MAX,
+work limits (space.CORE_LIMIT, RC_PAIRS_LIMIT, find.TANK_MAX, BIAS_MAX, REFINE_BUDGET,
 REFINE_MAX) the two must agree on the top k: the same scores and the same
 value sets.  Checked for the common-emitter Colpitts, the Clapp and the
 Hartley, each on drawers planted with a design of its own that works.
