@@ -222,7 +222,7 @@ def find(drawer: Drawer, spec: FindSpec, progress: Callable[[str, float], None] 
         tick("Monte Carlo yield", 0.9)
         from picker.search.montecarlo import yield_of
 
-        final = [replace(c, yield_=yield_of(c.design, spec)) for c in final]
+        final = [replace(c, yield_=yield_of(c.design, spec, c.evaluation)) for c in final]
     if not final:
         _explain(spec, stats, nearest, reasons)
     tick("done", 1.0)

@@ -44,23 +44,28 @@ def samples(design: Design, n: int, temps_c: tuple[float, ...], seed: int) -> De
     return b.with_(values=values, hfe=hfe, temp_c=temp)
 
 
-def run(design: Design, n: int, temps_c, seed: int):
-    """(freq_hz, margin) arrays of ``n`` samples."""
-    nominal = evaluate_batch(DesignBatch.from_designs([design]))
-    f_loop, f_run = float(nominal.freq_loop_hz[0]), float(nominal.freq_hz[0])
+def run(design: Design, n: int, temps_c, seed: int, nominal=None):
+    """(freq_hz, margin) arrays of ``n`` samples.  ``nominal``: the design's own figures
+    (anything with ``freq_loop_hz``, ``freq_hz`` and ``freq_ideal_hz``, such as the
+    Evaluation the full check made) when already known; else they are computed."""
+    if nominal is None:
+        res = evaluate_batch(DesignBatch.from_designs([design]))
+        f_loop, f_run, f_ideal0 = (float(res.freq_loop_hz[0]), float(res.freq_hz[0]), float(res.freq_ideal_hz[0]))
+    else:
+        f_loop, f_run, f_ideal0 = float(nominal.freq_loop_hz), float(nominal.freq_hz), float(nominal.freq_ideal_hz)
     ratio = f_run / f_loop if np.isfinite(f_run) and np.isfinite(f_loop) and f_loop > 0 else 1.0
     b = samples(design, n, temps_c, seed)
-    f_ideal0 = float(nominal.freq_ideal_hz[0])
     hand = b.topology.hand(b.values, np.ones(b.n), np.ones(b.n))
     guess = 2 * np.pi * f_loop * hand.freq_ideal_hz / f_ideal0
     ss = small_signal(b, guess)
     return ss.freq_loop_hz * ratio, ss.margin
 
 
-def yield_of(design: Design, spec) -> float | None:
-    """Share of samples in frequency tolerance and starting (margin >= 1)."""
+def yield_of(design: Design, spec, nominal=None) -> float | None:
+    """Share of samples in frequency tolerance and starting (margin >= 1); ``nominal`` as
+    for :func:`run`."""
     if spec.mc <= 0:
         return None
-    f, m = run(design, spec.mc, tuple(spec.temps_c), spec.seed)
+    f, m = run(design, spec.mc, tuple(spec.temps_c), spec.seed, nominal)
     ok = np.isfinite(f) & (np.abs(f / spec.freq_hz - 1) <= spec.tol) & (m >= 1.0)
     return float(np.mean(ok))
