@@ -6,7 +6,8 @@ stated rules; the search decomposes, screens and binary-searches.  Below the
 work limits (space.CORE_LIMIT, RC_PAIRS_LIMIT, find.TANK_MAX, BIAS_MAX, REFINE_BUDGET,
 REFINE_MAX) the two must agree on the top k: the same scores and the same
 value sets.  Checked for the common-emitter Colpitts, the Clapp and the
-Hartley, each on drawers planted with a design of its own that works.
+Hartley, each on drawers planted with a design of its own that works, and for
+one ranking over all three topologies and two transistor profiles.
 """
 
 import numpy as np
@@ -55,31 +56,35 @@ def _lines(kind, vals, costs, tols, dcr=None):
     return Lines.from_frame(kind, df)
 
 
-@st.composite
-def drawers(draw, topology):
-    case = CASES[topology]
-
-    def extra(lo_exp, hi_exp, seeds, k):
+def _random_drawer(draw, c_seeds, l_seeds, extra, npns):
+    """The seed lines plus up to ``extra`` random E12 lines per kind, random costs and tolerances."""
+    def more(lo_exp, hi_exp, seeds, k):
         pool = sorted({float(x) for x in preferred_values("E12", 10.0**lo_exp, 10.0**hi_exp)} - set(seeds))
         return draw(st.lists(st.sampled_from(pool), min_size=1, max_size=k, unique=True))
 
-    r = SEED_R + extra(1, 5, SEED_R, case["extra"]["r"])
-    c = case["c"] + extra(-10, -7, case["c"], case["extra"]["c"])
-    ind = case["l"] + extra(-4, -2, case["l"], case["extra"]["l"])
+    r = SEED_R + more(1, 5, SEED_R, extra["r"])
+    c = list(c_seeds) + more(-10, -7, c_seeds, extra["c"])
+    ind = list(l_seeds) + more(-4, -2, l_seeds, extra["l"])
     cost = lambda n: draw(st.lists(st.sampled_from([0.01, 0.02, 0.05, 0.1, 0.3]), min_size=n, max_size=n))  # noqa: E731
     tol = lambda n, opts: draw(st.lists(st.sampled_from(opts), min_size=n, max_size=n))  # noqa: E731
     return Drawer({"resistor": _lines("resistor", r, cost(len(r)), tol(len(r), [0.01, 0.05])),
                    "capacitor": _lines("capacitor", c, cost(len(c)), tol(len(c), [0.02, 0.05])),
                    "inductor": _lines("inductor", ind, cost(len(ind)), tol(len(ind), [0.05, 0.1]), _dcr(ind))},
-                  (Npn(NpnProfile(), 300, 50, 0.2, "Q1"),))
+                  npns)
+
+
+@st.composite
+def drawers(draw, topology):
+    case = CASES[topology]
+    return _random_drawer(draw, case["c"], case["l"], case["extra"], (Npn(NpnProfile(), 300, 50, 0.2, "Q1"),))
 
 
 def _spec(topology, tol, min_margin):
     return FindSpec(freq_hz=CASES[topology]["freq_hz"], tol=tol, topologies=(topology,), min_margin=min_margin, mc=0)
 
 
-def _compare(drawer, spec):
-    full = brute_force(drawer, spec)
+def _compare(drawer, spec, full=None):
+    full = brute_force(drawer, spec) if full is None else full
     # the seed design is always admissible, so every example compares a non-empty ranking
     assert full, space_size(drawer, spec)
     event(f"{spec.topologies[0]}: reference results {len(full) if len(full) <= 5 else 'more than 5'}")
@@ -126,3 +131,30 @@ def test_the_seed_design_is_in_the_reference(topology):
     assert abs(ref[0]["freq_hz"] / spec.freq_hz - 1) <= 0.03 and ref[0]["worst"] >= 1.5
     got = ranked(d, spec)
     assert np.isclose(got[0][0], ref[0]["score"], rtol=1e-6)
+
+
+MIXED_NPNS = (Npn(NpnProfile(), 300, 50, 0.2, "Q1"),
+              Npn(NpnProfile(name="npn-alt", hfe_min=60.0, hfe_max=180.0, ft_hz=600e6, cob_f=2e-12), 301, 50, 0.15, "Q2"))
+
+
+@st.composite
+def mixed_drawers(draw):
+    """The Colpitts and Clapp seed lines together (the Hartley finds its own pairs of coils
+    among them), a few random lines, and two transistor profiles."""
+    seeds_c = sorted(set(CASES["colpitts-ce"]["c"]) | set(CASES["clapp"]["c"]))
+    seeds_l = sorted(set(CASES["colpitts-ce"]["l"]) | set(CASES["hartley"]["l"]))
+    return _random_drawer(draw, seeds_c, seeds_l, {"r": 3, "c": 2, "l": 2}, MIXED_NPNS)
+
+
+@settings(max_examples=6, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(data=st.data())
+def test_top_k_over_topologies_and_transistors_equals_brute_force(data):
+    """One ranking over three topologies and two transistor profiles (the search's single
+    refine stream and its branch and bound across pools) against the brute force."""
+    drawer = data.draw(mixed_drawers(), "drawer")
+    spec = FindSpec(freq_hz=CASES["colpitts-ce"]["freq_hz"], tol=data.draw(st.sampled_from([0.03, 0.05]), "tol"),
+                    topologies=("colpitts-ce", "clapp", "hartley"), min_margin=1.5, mc=0)
+    full = brute_force(drawer, spec)
+    event(f"reference topologies {sorted({d['topology'] for d in full[:TOP_K]})}, "
+          f"transistors {sorted({d['npn'] for d in full[:TOP_K]})}")
+    _compare(drawer, spec, full)
