@@ -514,26 +514,26 @@ def _worst(pool, spec: FindSpec, stats, rows: np.ndarray, omega: np.ndarray, mar
                for h in (npn.hfe_min, npn.hfe_nominal, npn.hfe_max)
                if not (h == npn.hfe_nominal and t == spec.nominal_c)]
     m = rows.size
-    crow = np.tile(rows, len(corners))
-    hfe = np.repeat([c[0] for c in corners], m)
-    tmp = np.repeat([c[1] for c in corners], m)
-    css = small_signal(_batch(pool, crow, spec, hfe, tmp), np.tile(omega, len(corners)))
-    stats["refined_rows"] += crow.size
-    worst = np.minimum(margin, css.margin.reshape(len(corners), m).min(axis=0))
-    # first-order tolerance derating: ln M_worst = ln M_corner - sum |dlnM/dlnx| ln(1+tol)
     vals = _values(pool, rows)
     tols = _tols(pool, rows)
     topo = get_topology(pool["topology"])
     varied = [r for r in vals if r in tols and topo.position(r).kind in VARIED_KINDS and np.any(vals[r] > 0)]
-    big = {r: np.tile(v, len(varied)) for r, v in vals.items()}
+    # one engine batch: the corners (values as they are), then one block per varied
+    # position with that value raised by SENS_STEP (nominal hFE and temperature)
+    nc, nv = len(corners), len(varied)
+    big = {r: np.tile(v, nc + nv) for r, v in vals.items()}
     for k, r in enumerate(varied):
-        big[r][k * m:(k + 1) * m] *= 1 + SENS_STEP
-    srow = np.tile(rows, len(varied))
-    sss = small_signal(_batch(pool, srow, spec, npn.hfe_nominal, spec.nominal_c, values=big),
-                       np.tile(omega, len(varied)))
-    stats["refined_rows"] += srow.size
+        big[r][(nc + k) * m:(nc + k + 1) * m] *= 1 + SENS_STEP
+    hfe = np.concatenate([np.repeat([c[0] for c in corners], m), np.full(nv * m, npn.hfe_nominal)])
+    tmp = np.concatenate([np.repeat([c[1] for c in corners], m), np.full(nv * m, spec.nominal_c)])
+    brow = np.tile(rows, nc + nv)
+    ss = small_signal(_batch(pool, brow, spec, hfe, tmp, values=big), np.tile(omega, nc + nv))
+    stats["refined_rows"] += brow.size
+    mm = ss.margin.reshape(nc + nv, m)
+    worst = np.minimum(margin, mm[:nc].min(axis=0))
+    # first-order tolerance derating: ln M_worst = ln M_corner - sum |dlnM/dlnx| ln(1+tol)
     with np.errstate(divide="ignore", invalid="ignore"):
-        sens = (np.log(np.maximum(sss.margin.reshape(len(varied), m), 1e-300)) - np.log(margin)) / np.log1p(SENS_STEP)
+        sens = (np.log(np.maximum(mm[nc:], 1e-300)) - np.log(margin)) / np.log1p(SENS_STEP)
     derate = sum(np.abs(np.nan_to_num(sens[k], nan=0.0)) * np.log1p(tols[r]) for k, r in enumerate(varied))
     return worst * np.exp(-derate)
 

@@ -158,3 +158,21 @@ def test_loaded_frequency_solves_the_two_node_phase_condition(l_h, dcr, c1, fb, 
     if not clapp:
         bare = space.loaded_freq_hz(l_h, 0.0, c1, c2, 0.0, 0.0)
         assert bare == pytest.approx(1 / (2 * np.pi * np.sqrt(l_h * c1 * c2 / (c1 + c2))), rel=1e-12)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.tuples(st.sampled_from([0.01, 0.02, 0.05]), st.floats(-3, 3), st.integers(0, 3)), min_size=1,
+                max_size=40), st.sampled_from([0.5, 1.0, 2.0]))
+def test_cheapest_per_step_is_the_first_cheapest_per_cell(rows, step):
+    """Per cell (each quantity cut into steps, rounded to the nearest): the lowest cost,
+    ties to the lowest index; written out as a dictionary loop."""
+    cost = np.array([r[0] for r in rows])
+    x = np.array([r[1] for r in rows])
+    y = np.array([r[2] for r in rows], dtype=float)
+    got = space.cheapest_per_step(cost, ((x, step), (y, 1.0)))
+    best = {}
+    for i, (c, a, b) in enumerate(rows):
+        cell = (int(np.round(a / step)), int(np.round(b)))
+        if cell not in best or c < cost[best[cell]]:
+            best[cell] = i
+    assert got.tolist() == sorted(best.values())
