@@ -336,9 +336,10 @@ def _search_one(topology, npn: Npn, drawer: Drawer, spec: FindSpec, stats, neare
                           min_gain=spec.min_margin / SCREEN_FACTOR, fb_max=space.FEEDBACK_CE[1])
     else:
         ind = drawer.lines["inductor"]
-        # the tank inductor carries the collector current: use the largest DCR among the tanks
-        dcr = float(np.max(ind.dcr_ohm[offers["L1"].line[tk.index["L1"]]]))
-        bs = space.biases(roff, npn.profile, spec.vcc_v, *spec.ie_a, common_emitter=False, rc_dc_ohm=dcr)
+        # the tank inductor carries the collector current: biases with the smallest DCR among
+        # the tanks here, each pair with its own tank's DCR at the meet below
+        dcr_cb = float(np.min(ind.dcr_ohm[offers["L1"].line[tk.index["L1"]]]))
+        bs = space.biases(roff, npn.profile, spec.vcc_v, *spec.ie_a, common_emitter=False, rc_dc_ohm=dcr_cb)
     if bs.n == 0:
         return None
     coff = _coupling_offer(drawer, spec)
@@ -389,6 +390,10 @@ def _search_one(topology, npn: Npn, drawer: Drawer, spec: FindSpec, stats, neare
         hand = strength[ib] * rp[it] * tk.feedback[it]
     stats["pairs_screened"] += it.size
     pass_ = hand * SCREEN_FACTOR >= spec.min_margin
+    if not ce:  # VCE at DC with the pair's own coil (the biases were formed with the smallest DCR)
+        beta_min = npn.profile.hfe_min
+        ic = bs.ie_a[ib] * beta_min / (beta_min + 1)
+        pass_ &= bs.vce_v[ib] - ic * (dcr[it] - dcr_cb) >= space.VCE_MIN_V
     it, ib = it[pass_], ib[pass_]
     if it.size == 0:
         stats.setdefault("weak", 0)

@@ -1,9 +1,10 @@
 """A straightforward brute-force reference for ``find``'s ranking (common-emitter
-Colpitts, Clapp and Hartley).
+Colpitts, Clapp, Hartley and common-base Colpitts).
 
 Per topology it forms the full product of every stocked line at every tank
 and bias position (common-emitter Colpitts: L1, C1, C2; Clapp: L1, C1, C2,
-C3; Hartley: L1, L2, C1; then R1, R2, RE, RE1 or none, RC), keeps the designs
+C3; Hartley: L1, L2, C1; then R1, R2, RE, RE1 or none, RC; common base: L1, C1,
+C2, then R1, R2, RE), keeps the designs
 that meet the stated design rules (the rules that define a result, not the
 search's screens), fills the coupling and bypass positions by their stated
 rule, runs the engine on every survivor with the global phase-zero search (no
@@ -24,6 +25,10 @@ a result", which does not yet state the Clapp and Hartley tank rules):
   C3 at most ``space.CLAPP_C3_FRACTION`` x min(C1, C2) (nominal values);
 * Hartley: two separate coils L1 (collector side) and L2 (base side), K = 0,
   feedback L2/L1 inside ``space.FEEDBACK_CE``; each coil's own DCR;
+* common base: feedback C1/(C1 + C2) inside ``space.FEEDBACK_CB``; no RC and no
+  RE1: the tank coil L1 carries the collector current, so the VCE rule counts
+  its DCR; CB (base to ground) is the one bypass capacitor and feeds the base;
+  its tank resonance is L1 with stray + Cmu across C1 in series with C2 + stray + Cpi;
 * divider: VB between VBE + 0.3 V and 70 % of the supply, divider current at
   most the top of the current window, RTh/(hFE_min + 1) <= 0.1 (RE + RE1);
 * emitter current (hand method at hFE_min) inside the window; RE1 none or an
@@ -64,11 +69,14 @@ from picker.search import space
 from picker.search.stock import STABLE_DIELECTRICS
 
 #: Tank positions per topology (a designator starting with L is an inductor, with C a capacitor).
-TANKS = {"colpitts-ce": ("L1", "C1", "C2"), "clapp": ("L1", "C1", "C2", "C3"), "hartley": ("L1", "L2", "C1")}
+TANKS = {"colpitts-ce": ("L1", "C1", "C2"), "clapp": ("L1", "C1", "C2", "C3"), "hartley": ("L1", "L2", "C1"),
+         "colpitts-cb": ("L1", "C1", "C2")}
 BIAS = ("R1", "R2", "RE", "RE1", "RC")
 COUPLING = ("CC1", "CC2", "CE")
-#: Capacitor positions per topology outside the tank (coupling and bypass), for space_size.
-_NON_TANK_CAPS = len(COUPLING)
+#: The common-base form: no RC (the tank coil carries the collector current), no RE1,
+#: and one bypass capacitor CB from the base to ground.
+CB_BIAS = ("R1", "R2", "RE")
+CB_COUPLING = ("CB",)
 #: Designs per engine call (memory only; the results do not depend on it).
 ENGINE_CHUNK = 20_000
 
@@ -93,8 +101,11 @@ def space_size(drawer, spec) -> int:
     for t in _topologies(spec):
         tank = TANKS[t]
         nl = sum(r.startswith("L") for r in tank)
-        nc = sum(r.startswith("C") for r in tank) + _NON_TANK_CAPS
-        total += n["inductor"] ** nl * n["capacitor"] ** nc * n["resistor"] ** 4 * (n["resistor"] + 1)
+        if t == "colpitts-cb":
+            nc, nr = sum(r.startswith("C") for r in tank) + len(CB_COUPLING), n["resistor"] ** 3
+        else:
+            nc, nr = sum(r.startswith("C") for r in tank) + len(COUPLING), n["resistor"] ** 4 * (n["resistor"] + 1)
+        total += n["inductor"] ** nl * n["capacitor"] ** nc * nr
     return total * npn
 
 
@@ -124,6 +135,9 @@ def _tank_product(drawer, spec, topology):
     if topology == "hartley":
         fb = v["L2"] / v["L1"]
         ok = (fb >= lo) & (fb <= hi)
+    elif topology == "colpitts-cb":
+        fb = v["C1"] / (v["C1"] + v["C2"])
+        ok = (fb >= space.FEEDBACK_CB[0]) & (fb <= space.FEEDBACK_CB[1])
     else:
         fb = v["C1"] / v["C2"]
         ok = (fb >= lo) & (fb <= hi)
@@ -135,6 +149,10 @@ def _tank_product(drawer, spec, topology):
 def _tank_resonance_hz(topology, v, stray_f, caps):
     """The tank's own resonance, strays and transistor capacitance included (see the docstring)."""
     coll, base = stray_f + caps.cmu_f, stray_f + caps.cpi_f + caps.cmu_f
+    if topology == "colpitts-cb":  # collector side stray + Cmu across, C1 in series with C2 + stray + Cpi
+        emit = stray_f + caps.cpi_f
+        c = coll + 1.0 / (1.0 / v["C1"] + 1.0 / (v["C2"] + emit))
+        return 1.0 / (2 * np.pi * np.sqrt(v["L1"] * c))
     if topology == "hartley":
         c = v["C1"] + coll * base / (coll + base)
         return 1.0 / (2 * np.pi * np.sqrt((v["L1"] + v["L2"]) * c))
@@ -150,8 +168,13 @@ def _one(drawer, spec, npn, topology):
     R, C, L = drawer.lines["resistor"], drawer.lines["capacitor"], drawer.lines["inductor"]
     ir, ic = _usable(R, spec.boards), _usable(C, spec.boards)
     # the bias product and its rules
-    re1_opts = np.concatenate([[-1], ir[(R.value[ir] >= 10.0) & (R.value[ir] <= 1e3)]])
-    grids = np.meshgrid(ir, ir, ir, re1_opts, ir, indexing="ij")
+    cb = topology == "colpitts-cb"
+    bias_refs, coupling_refs = (CB_BIAS, CB_COUPLING) if cb else (BIAS, COUPLING)
+    if cb:  # R1, R2, RE; no RE1 (-1) and no RC (the coil's DCR, checked per design below)
+        grids = np.meshgrid(ir, ir, ir, [-1], [-1], indexing="ij")
+    else:
+        re1_opts = np.concatenate([[-1], ir[(R.value[ir] >= 10.0) & (R.value[ir] <= 1e3)]])
+        grids = np.meshgrid(ir, ir, ir, re1_opts, ir, indexing="ij")
     gb = dict(zip(BIAS, (a.ravel() for a in grids)))
     vb_ = {r: np.where(gb[r] >= 0, R.value[np.maximum(gb[r], 0)], 0.0) for r in BIAS}
     beta, vcc = p.hfe_min, spec.vcc_v
@@ -171,7 +194,8 @@ def _one(drawer, spec, npn, topology):
     cc = cc[np.argsort(C.value[cc], kind="stable")]
     gm = ie / HAND_VT_V
     r_in = 1.0 / (1.0 / rth + 1.0 / (p.hfe_nominal / gm + (p.hfe_nominal + 1) * vb_["RE1"]))
-    feeds = {"CC1": vb_["RC"], "CC2": r_in, "CE": np.minimum(vb_["RE"], 1.0 / gm + vb_["RE1"])}
+    feeds = ({"CB": r_in} if cb else
+             {"CC1": vb_["RC"], "CC2": r_in, "CE": np.minimum(vb_["RE"], 1.0 / gm + vb_["RE1"])})
     omega = 2 * np.pi * spec.freq_hz
     keep = np.ones(ie.size, dtype=bool)
     for r, z in feeds.items():
@@ -179,17 +203,25 @@ def _one(drawer, spec, npn, topology):
         k = np.searchsorted(C.value[cc], need, "left")
         keep &= k < cc.size
         gb[r] = cc[np.minimum(k, cc.size - 1)]
-    gb = {r: a[keep] for r, a in gb.items()}
+    gb = {r: a[keep] for r, a in gb.items() if r in bias_refs + coupling_refs}
+    ie = ie[keep]
     # the tank product and its rules, then every tank with every bias network
     gt = _tank_product(drawer, spec, topology)
     nt, nb = next(iter(gt.values())).size, keep.sum()
     if nt == 0 or nb == 0:
         return []
     it, ib = (a.ravel() for a in np.meshgrid(np.arange(nt), np.arange(nb), indexing="ij"))
+    if cb:  # VCE at DC >= 1.5 V with the design's own coil carrying the collector current
+        re_ohm = R.value[gb["RE"][ib]]
+        vce = vcc - ie[ib] * beta / (beta + 1) * L.dcr_ohm[gt["L1"][it]] - ie[ib] * re_ohm
+        it, ib = it[vce >= 1.5], ib[vce >= 1.5]
+        if it.size == 0:
+            return []
     g = {r: a[it] for r, a in gt.items()} | {r: a[ib] for r, a in gb.items()}
-    kind_lines = {r: (L if r.startswith("L") else C) for r in tank} | {r: R for r in BIAS} | {r: C for r in COUPLING}
+    kind_lines = ({r: (L if r.startswith("L") else C) for r in tank} | {r: R for r in bias_refs}
+                  | {r: C for r in coupling_refs})
     v = {r: np.where(a >= 0, kind_lines[r].value[np.maximum(a, 0)], 0.0) for r, a in g.items()}
-    tols = {r: np.where(g[r] >= 0, kind_lines[r].tol[np.maximum(g[r], 0)], 0.0) for r in tank + BIAS}
+    tols = {r: np.where(g[r] >= 0, kind_lines[r].tol[np.maximum(g[r], 0)], 0.0) for r in tank + bias_refs}
     coils = [r for r in tank if r.startswith("L")]
     dcr = {r: L.dcr_ohm[g[r]] for r in coils}
     if topology == "hartley":
@@ -234,7 +266,7 @@ def _one(drawer, spec, npn, topology):
             worst = np.minimum(worst, engine(rows, v, h, t).margin)
     step = 0.01
     derate = np.zeros(rows.size)
-    for r in tank + BIAS:
+    for r in tank + bias_refs:
         if not np.any(v[r][rows] > 0):
             continue
         bumped = dict(v)

@@ -5,8 +5,9 @@ line at every position and runs the engine on every design that meets the
 stated rules; the search decomposes, screens and binary-searches.  Below the
 work limits (space.CORE_LIMIT, RC_PAIRS_LIMIT, find.TANK_MAX, BIAS_MAX, REFINE_BUDGET,
 REFINE_MAX) the two must agree on the top k: the same scores and the same
-value sets.  Checked for the common-emitter Colpitts, the Clapp and the
-Hartley, each on drawers planted with a design of its own that works, and for
+value sets.  Checked for the common-emitter Colpitts, the Clapp, the Hartley
+and the common-base Colpitts, each on drawers planted with a design of its own
+that works, and for
 one ranking over all three topologies and two transistor profiles.
 """
 
@@ -26,8 +27,9 @@ SEED_R = [100.0, 2.2e3, 10e3, 33e3]
 #: random lines around it compete with it); the seed lines, the target (the seed's
 #: engine frequency, rounded), the known tank, and how many random lines of each kind
 #: are added (the Clapp has one more capacitor position, so fewer capacitors).
-#: Colpitts: the known design of test_find.py.  Clapp and Hartley seeds: found by this
-#: module's brute force on the seed lines alone (loop frequency 176.4 kHz and 70.0 kHz).
+#: Colpitts: the known design of test_find.py.  Clapp, Hartley and common-base seeds: found
+#: by this module's brute force on the seed lines alone (loop frequency 176.4 kHz, 70.0 kHz
+#: and 550.8 kHz).
 CASES = {
     "colpitts-ce": dict(c=[4.7e-9, 47e-9, 1e-6], l=[1e-3], freq_hz=76.6e3,
                         tank={"L1": 1e-3, "C1": 4.7e-9, "C2": 47e-9}, extra={"r": 4, "c": 4, "l": 3}),
@@ -35,6 +37,8 @@ CASES = {
                   tank={"L1": 1e-3, "C1": 4.7e-9, "C2": 47e-9, "C3": 1e-9}, extra={"r": 4, "c": 3, "l": 3}),
     "hartley": dict(c=[4.7e-9, 47e-9, 1e-6], l=[1e-4, 1e-3], freq_hz=70e3,
                     tank={"L1": 1e-3, "L2": 1e-4, "C1": 4.7e-9}, extra={"r": 4, "c": 4, "l": 3}),
+    "colpitts-cb": dict(c=[1e-9, 4.7e-9, 100e-9], l=[1e-4], freq_hz=550.8e3,
+                        tank={"L1": 1e-4, "C1": 1e-9, "C2": 4.7e-9}, extra={"r": 4, "c": 4, "l": 3}),
 }
 EXAMPLES = 10
 
