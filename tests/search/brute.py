@@ -47,6 +47,10 @@ a result", which does not yet state the Clapp and Hartley tank rules):
   across it;
 * frequency within tolerance, nominal margin and tolerance-derated worst-case
   margin at least ``min_margin``, transistor not saturated;
+* with ``combine``: the trim position (``TRIM``) may hold, besides any single
+  line, any unordered pair of tank-fit lines in series or in parallel (a line
+  with itself only if it holds twice the boards); a pair's tolerance is the
+  worse of the two, its cost the sum, and it counts as two parts;
 * the tank's loaded Q at nominal (``evaluate.loaded_q_of``, the figure the full
   check judges) at least ``checks.MIN_LOADED_Q``.
 
@@ -77,6 +81,8 @@ COUPLING = ("CC1", "CC2", "CE")
 #: and one bypass capacitor CB from the base to ground.
 CB_BIAS = ("R1", "R2", "RE")
 CB_COUPLING = ("CB",)
+#: The trim position per topology: the one ``--combine`` may fill with a pair (find.TRIM).
+TRIM = {"colpitts-ce": "C2", "clapp": "C3", "hartley": "C1", "colpitts-cb": "C2"}
 #: Designs per engine call (memory only; the results do not depend on it).
 ENGINE_CHUNK = 20_000
 
@@ -122,15 +128,41 @@ def brute_force(drawer, spec) -> list[dict]:
     return out
 
 
+def trim_choices(C, ic_tank, boards):
+    """``--combine``'s choices at the trim position, as a table of virtual lines: every
+    tank-fit line alone, then every unordered pair of them (a line with itself only if it
+    holds twice the boards) in series and in parallel.  A pair's tolerance is the worse of
+    the two, its cost the sum, its parts 2."""
+    i, j = np.triu_indices(ic_tank.size)
+    a, b = ic_tank[i], ic_tank[j]
+    ok = (a != b) | (C.qty[a] >= 2 * boards)
+    a, b = a[ok], b[ok]
+    va, vb = C.value[a], C.value[b]
+    tol, cost = np.maximum(C.tol[a], C.tol[b]), C.cost[a] + C.cost[b]
+    return SimpleNamespace(  # singles, then the series pairs, then the parallel pairs
+        value=np.concatenate([C.value[ic_tank], va * vb / (va + vb), va + vb]),
+        tol=np.concatenate([C.tol[ic_tank], tol, tol]),
+        cost=np.concatenate([C.cost[ic_tank], cost, cost]),
+        parts=np.concatenate([np.ones(ic_tank.size, int), np.full(2 * a.size, 2)]),
+        line=np.concatenate([ic_tank, a, a]), line2=np.concatenate([np.full(ic_tank.size, -1), b, b]))
+
+
 def _tank_product(drawer, spec, topology):
-    """Every tank of stocked lines (line indices per position) meeting the tank rules."""
+    """Every tank of stocked lines meeting the tank rules, and the table each position's
+    indices point into: the drawer's lines, except with ``spec.combine`` at the trim
+    position, whose indices point into :func:`trim_choices`."""
     C, L = drawer.lines["capacitor"], drawer.lines["inductor"]
     ic, il = _usable(C, spec.boards), _usable(L, spec.boards)
     ic_tank = ic[np.isin(C.dielectric[ic].astype(str), STABLE_DIELECTRICS)]
     tank = TANKS[topology]
-    grids = np.meshgrid(*[il if r.startswith("L") else ic_tank for r in tank], indexing="ij")
+    opts = {r: il if r.startswith("L") else ic_tank for r in tank}
+    table = {r: L if r.startswith("L") else C for r in tank}
+    if spec.combine:
+        trim = trim_choices(C, ic_tank, spec.boards)
+        opts[TRIM[topology]], table[TRIM[topology]] = np.arange(trim.value.size), trim
+    grids = np.meshgrid(*[opts[r] for r in tank], indexing="ij")
     g = dict(zip(tank, (a.ravel() for a in grids)))
-    v = {r: (L if r.startswith("L") else C).value[g[r]] for r in tank}
+    v = {r: table[r].value[g[r]] for r in tank}
     lo, hi = space.FEEDBACK_CE
     if topology == "hartley":
         fb = v["L2"] / v["L1"]
@@ -143,7 +175,7 @@ def _tank_product(drawer, spec, topology):
         ok = (fb >= lo) & (fb <= hi)
         if topology == "clapp":
             ok &= v["C3"] <= space.CLAPP_C3_FRACTION * np.minimum(v["C1"], v["C2"])
-    return {r: a[ok] for r, a in g.items()}
+    return {r: a[ok] for r, a in g.items()}, table
 
 
 def _tank_resonance_hz(topology, v, stray_f, caps):
@@ -206,7 +238,7 @@ def _one(drawer, spec, npn, topology):
     gb = {r: a[keep] for r, a in gb.items() if r in bias_refs + coupling_refs}
     ie = ie[keep]
     # the tank product and its rules, then every tank with every bias network
-    gt = _tank_product(drawer, spec, topology)
+    gt, tank_lines = _tank_product(drawer, spec, topology)
     nt, nb = next(iter(gt.values())).size, keep.sum()
     if nt == 0 or nb == 0:
         return []
@@ -218,8 +250,7 @@ def _one(drawer, spec, npn, topology):
         if it.size == 0:
             return []
     g = {r: a[it] for r, a in gt.items()} | {r: a[ib] for r, a in gb.items()}
-    kind_lines = ({r: (L if r.startswith("L") else C) for r in tank} | {r: R for r in bias_refs}
-                  | {r: C for r in coupling_refs})
+    kind_lines = tank_lines | {r: R for r in bias_refs} | {r: C for r in coupling_refs}
     v = {r: np.where(a >= 0, kind_lines[r].value[np.maximum(a, 0)], 0.0) for r, a in g.items()}
     tols = {r: np.where(g[r] >= 0, kind_lines[r].tol[np.maximum(g[r], 0)], 0.0) for r in tank + bias_refs}
     coils = [r for r in tank if r.startswith("L")]
@@ -282,6 +313,8 @@ def _one(drawer, spec, npn, topology):
         return []
     cost = npn.cost + sum(np.where(g[r][rows] >= 0, kind_lines[r].cost[np.maximum(g[r][rows], 0)], 0.0) for r in g)
     parts = 1 + sum((g[r][rows] >= 0).astype(int) for r in g)
+    if spec.combine:  # a pair at the trim position is two parts
+        parts = parts + kind_lines[TRIM[topology]].parts[g[TRIM[topology]][rows]] - 1
     w = spec.weights
     score = (w.get("error", 0.0) * np.abs(err[rows]) / spec.tol
              + w.get("margin", 0.0) * np.maximum(0.0, 1 - worst / (1.5 * spec.min_margin)) + w.get("cost", 0.0) * cost)

@@ -7,9 +7,12 @@ work limits (space.CORE_LIMIT, RC_PAIRS_LIMIT, find.TANK_MAX, BIAS_MAX, REFINE_B
 REFINE_MAX) the two must agree on the top k: the same scores and the same
 value sets.  Checked for the common-emitter Colpitts, the Clapp, the Hartley
 and the common-base Colpitts, each on drawers planted with a design of its own
-that works, and for
-one ranking over all three topologies and two transistor profiles.
+that works; for one ranking over three topologies and two transistor profiles;
+and with ``--combine`` (pairs at the trim position) for the common-emitter
+Colpitts and the Hartley.
 """
+
+from dataclasses import replace
 
 import numpy as np
 import pandas as pd
@@ -19,7 +22,7 @@ from hypothesis import HealthCheck, event, given, settings, strategies as st
 from picker.circuit.device import NpnProfile
 from picker.eseries import preferred_values
 from picker.search.find import Drawer, FindSpec, Npn, entry_values, ranked
-from tests.search.brute import brute_force, space_size
+from tests.search.brute import TRIM, brute_force, space_size
 
 TOP_K = 5
 SEED_R = [100.0, 2.2e3, 10e3, 33e3]
@@ -161,4 +164,20 @@ def test_top_k_over_topologies_and_transistors_equals_brute_force(data):
     full = brute_force(drawer, spec)
     event(f"reference topologies {sorted({d['topology'] for d in full[:TOP_K]})}, "
           f"transistors {sorted({d['npn'] for d in full[:TOP_K]})}")
+    _compare(drawer, spec, full)
+
+
+@pytest.mark.parametrize("topology", ["colpitts-ce", "hartley"])
+@settings(max_examples=4, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(data=st.data())
+def test_top_k_with_combine_equals_brute_force(topology, data):
+    """``--combine``: the trim position (C2, or the Hartley's C1) may hold any pair of
+    capacitors in series or parallel; the brute force enumerates every pair of lines."""
+    drawer = data.draw(drawers(topology), "drawer")
+    spec = replace(_spec(topology, data.draw(st.sampled_from([0.01, 0.03]), "tol"), 1.5), combine=True)
+    full = brute_force(drawer, spec)
+    singles = set(drawer.lines["capacitor"].value.tolist())
+    trim = TRIM[topology]
+    event(f"{topology}: pairs at {trim} in the reference top {TOP_K}: "
+          f"{sum(d['values'][trim] not in singles for d in full[:TOP_K])}")
     _compare(drawer, spec, full)
