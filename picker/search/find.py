@@ -546,24 +546,21 @@ def _worst(pool, spec: FindSpec, stats, rows: np.ndarray, omega: np.ndarray, mar
 def _tank_rank(it: np.ndarray) -> np.ndarray:
     """Per row (rows in screen order): how many rows of the same tank come before it."""
     o = np.argsort(it, kind="stable")
-    s = it[o]
-    start = np.r_[0, np.flatnonzero(s[1:] != s[:-1]) + 1]
-    first = np.repeat(start, np.diff(np.r_[start, s.size]))
-    rank = np.empty(s.size, dtype=np.int64)
-    rank[o] = np.arange(s.size) - first
+    rank = np.empty(it.size, dtype=np.int64)
+    rank[o] = _tank_rank_sorted(it[o])
     return rank
 
 
 def _refine_stream(pools, spec: FindSpec, drawer: Drawer, stats) -> list[dict]:
-    """The engine over every pool's rows in one stream, chunk by chunk, until
-    ENOUGH_TANKS x top distinct (pool, tank) pairs pass (or REFINE_BUDGET rows were
-    taken); per pool the refined rows' figures, concatenated.
+    """The engine over every pool's rows in one stream, chunk by chunk, until the sum of
+    the ENOUGH_TANKS x top best tank scores has not improved for STALE_CHUNKS chunks (or
+    REFINE_BUDGET rows were taken); per pool the refined rows' figures, concatenated.
 
     The stream is ordered by (within-tank rank // PER_TANK, screen score): first the
     PER_TANK best-screened bias networks of every tank, best tanks first, across all
-    topologies and transistors, then the next PER_TANK of each, and so on.  When fewer
-    tanks than that pass, every row is taken (the search is then complete, as the
-    exactness test needs).
+    topologies and transistors, then the next PER_TANK of each, and so on.  While fewer
+    than ENOUGH_TANKS x top tanks pass, every row is taken (the search is then complete,
+    as the exactness test needs).
 
     Each chunk gets the nominal figures first (:func:`_nominal`); the worst case
     (:func:`_worst`, about fifteen engine rows per row) only by branch and bound.  A
