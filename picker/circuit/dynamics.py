@@ -337,13 +337,15 @@ def _node_v(model: Model, v: np.ndarray, k: int, fixed: np.ndarray) -> np.ndarra
 _G_OFF = _g_part(np.array(G_MIN))
 
 
-def _device(mdl: Model, a, vbe, vbc, steps: int = 8, rows=None):
+def _device(mdl: Model, a, vbe, vbc, steps: int = 8, rows=None, lg0=None):
     """Averaged transistor at amplitude ``a`` with a self-consistent base-collector swing.
 
     The B-C swing is rho * a, where the mode-shape ratio rho falls as the
     forward-biased B-C junction loads the circuit (conductance ratio g); g
-    itself grows with the swing.  The fixed point g = G(rho(g) a) is found by
-    bisection on log g (G - g is decreasing in g).
+    itself grows with the swing.  Without ``lg0`` the fixed point
+    g = G(rho(g) a) is its smallest root, found by bisection on log g; with
+    ``lg0`` (n,) it is the root Newton reaches from log g = lg0 (the branch of
+    a nearby balanced state).
 
     ``rows`` (default: every design) picks the model's design of each entry,
     so one call can evaluate several trial states of the same designs.
@@ -353,6 +355,8 @@ def _device(mdl: Model, a, vbe, vbc, steps: int = 8, rows=None):
         rows, j = np.arange(a.shape[0]), mdl.j
     else:
         j = mdl.j.take(rows)
+    if lg0 is not None:
+        return _device_tracked(mdl, rows, a, vbe, vbc, lg0)
     flat = mdl.rho.reshape(-1)
     ln_f, r = junction_be(j, a, vbe)
     rp = _r_part(rows, r)
@@ -364,6 +368,21 @@ def _device(mdl: Model, a, vbe, vbc, steps: int = 8, rows=None):
         lg = _bc_fixed_point(flat, rp_on, cj, a[on], vbc[on], steps)
         ln_r[on], g[on] = _bc(*cj, _interp(flat, rp_on, _g_part(np.exp(lg))) * a[on], vbc[on])
     return ln_f, r, ln_r, g
+
+
+def _device_tracked(mdl: Model, rows, a, vbe, vbc, lg, iterations: int = 6):
+    """:func:`_device` on the B-C fixed point's branch through ``lg`` (Newton on log g)."""
+    lg = np.clip(np.asarray(lg, dtype=float), -700.0, 5.0)
+    h = 1e-6
+    m = lg.shape[0]
+    rr, aa, be, bc = (np.concatenate([x, x]) for x in (rows, a, vbe, vbc))
+    for _ in range(iterations):
+        g = _device_with(mdl, rr, aa, be, bc, np.concatenate([lg, lg + h]))[3]
+        f = np.log(np.maximum(g, 1e-300)) - np.concatenate([lg, lg + h])
+        d = (f[m:] - f[:m]) / h
+        step = np.clip(-f[:m] / np.where(d < -1e-12, d, -1e-12), -LOG_STEP_R, LOG_STEP_R)
+        lg = np.clip(lg + step, -700.0, 5.0)
+    return _device_with(mdl, rows, a, vbe, vbc, lg)
 
 
 #: Log-spaced trial values of g scanned for the first root of the B-C fixed point.
@@ -436,12 +455,16 @@ def _bc_fixed_point(flat: np.ndarray, rp, cj, a, vbc, steps: int) -> np.ndarray:
     return lg
 
 
-def _rates(model: Model, u: np.ndarray, v: np.ndarray):
-    """d ln a / dt (1/s) and the node injections (A) for states (n,), (n, M)."""
+def _rates(model: Model, u: np.ndarray, v: np.ndarray, lg=None):
+    """d ln a / dt (1/s) and the node injections (A) for states (n,), (n, M).
+
+    ``lg`` (n,): follow the B-C fixed point's branch from this log g (a
+    balanced state's); None: take its smallest root (a start-up's branch).
+    """
     net = model.net
     vb = v[:, net.ib]
     vc = _node_v(model, v, net.ic, model.vcc_v)
-    ln_f, r, ln_r, g = _device(model, np.exp(u), vb - v[:, net.ij], vb - vc)
+    ln_f, r, ln_r, g = _device(model, np.exp(u), vb - v[:, net.ij], vb - vc, lg0=lg)
     sigma = _bilinear(model.sig, r, g)
     return sigma, _injections(model, np.exp(np.minimum(ln_f, EXP_CAP)), np.exp(np.minimum(ln_r, EXP_CAP)))
 
@@ -468,10 +491,10 @@ def bias_time_constant(net: SlowNetwork) -> np.ndarray:
     return 1.0 / np.min(slow, axis=1)
 
 
-def _state_rates(mdl: Model, y: np.ndarray) -> np.ndarray:
-    """(n, K) time derivatives of the states (ln a, node voltages)."""
+def _state_rates(mdl: Model, y: np.ndarray, lg=None) -> np.ndarray:
+    """(n, K) time derivatives of the states (ln a, node voltages); ``lg`` as for :func:`_rates`."""
     u, v = y[:, 0], y[:, 1:]
-    sigma, inj = _rates(mdl, np.clip(u, -60.0, 5.0), v)
+    sigma, inj = _rates(mdl, np.clip(u, -60.0, 5.0), v, lg)
     dv = np.linalg.solve(mdl.net.c, (mdl.net.b - np.einsum("nij,nj->ni", mdl.net.g, v) + inj)[..., None])[..., 0]
     return np.concatenate([sigma[:, None], dv], axis=1)
 
@@ -491,19 +514,45 @@ def _fd_jacobian(f, y: np.ndarray, f0: np.ndarray, h: np.ndarray) -> np.ndarray:
 _BATCH_ROWS = 128
 
 
+def _device_with(mdl: Model, rows, a, vbe, vbc, lg):
+    """Averaged transistor at amplitude ``a`` with the B-C conductance ratio taken as e^lg.
+
+    Returns (ln_f, r, ln_r, g) as :func:`_device` does; here ``g`` is the
+    conductance ratio that the swing rho(r, e^lg) a gives, so lg is the
+    self-consistent one where log g = lg.
+    """
+    j = mdl.j.take(rows)
+    ln_f, r = junction_be(j, a, vbe)
+    rho = _interp(mdl.rho.reshape(-1), _r_part(rows, r), _g_part(np.exp(lg)))
+    ln_r, g = _bc(j.log_is, j.vt, j.gm_q, rho * a, vbc)
+    return ln_f, r, ln_r, g
+
+
+#: Number of unknowns of the bias balance: log forward current, log B-C diode current, log g.
+_K = 3
+
+
 def balance(mdl: Model, u: np.ndarray, iterations: int = 30, start=None, with_state=False):
     """Node voltages where the bias network carries the average currents at amplitude e^u.
 
     The network is linear, so the node voltages are an affine function of the
     two device currents (forward emitter current, base-collector diode
-    current); Newton runs on their logarithms, where the junction laws are
-    nearly linear, with steps limited to LOG_STEP.
+    current).  Newton runs on their logarithms, where the junction laws are
+    nearly linear, together with the log of the base-collector conductance
+    ratio g (the B-C swing depends on g through the mode shape, and g on the
+    swing).  Taking g as an unknown keeps the residual smooth where the
+    swing's fixed point has several roots; a warm start (``start``) follows
+    one branch as the amplitude changes.  Steps are scaled down as a whole so
+    that no log changes by more than LOG_STEP (LOG_STEP_R for the diode
+    current and g, which span hundreds when the junction is off).
 
     Each design's steps are its own (the device model is row by row), so
     trial states are stacked into one call of the device model: the halvings
     of a backtracking step are tried several at once, and while no row
     backtracks the finite-difference neighbours of a trial point are
     evaluated with it (the next Jacobian comes with an accepted step).
+    Returns the node voltages (n, M); with ``with_state`` also the state
+    (n, 3) and whether each row's balance was solved.
     """
     net = mdl.net
     n = u.shape[0]
@@ -514,72 +563,77 @@ def balance(mdl: Model, u: np.ndarray, iterations: int = 30, start=None, with_st
     solve = lambda rhs: np.linalg.solve(net.g, rhs[..., None])[..., 0]  # noqa: E731
     v0, zf, zr = solve(net.b), solve(jf), solve(jr)
 
-    def volts(lf, lr):
-        return v0 + zf * np.exp(lf)[:, None] + zr * np.exp(lr)[:, None]
+    def volts(x):
+        return v0 + zf * np.exp(x[:, 0])[:, None] + zr * np.exp(x[:, 1])[:, None]
 
     # the node voltages the device sees, as (offset, per forward current, per diode current)
     cols = [(v0[:, k], zf[:, k], zr[:, k]) for k in (net.ib, net.ij, net.ic) if k >= 0]
     vcc = mdl.vcc_v
 
-    def resid(rows, lf, lr):
-        """Residuals at (lf, lr) for model rows ``rows``."""
-        ef, er = np.exp(lf), np.exp(lr)
+    def terminals(rows, x):
+        ef, er = np.exp(x[:, 0]), np.exp(x[:, 1])
         vb, vj, *vc = (c0[rows] + cf[rows] * ef + cr[rows] * er for c0, cf, cr in cols)
-        vc = vc[0] if vc else vcc[rows]
-        ln_f, _, ln_r, _ = _device(mdl, a[rows], vb - vj, vb - vc, rows=rows)
-        return ln_f - lf, ln_r - lr
+        return vb - vj, vb - (vc[0] if vc else vcc[rows])
+
+    def resid(rows, x):
+        """Residuals (m, 3) at states x (m, 3) of model rows ``rows``."""
+        vbe, vbc = terminals(rows, x)
+        ln_f, _, ln_r, g = _device_with(mdl, rows, a[rows], vbe, vbc, x[:, 2])
+        return np.stack([ln_f - x[:, 0], ln_r - x[:, 1], np.log(np.maximum(g, 1e-300)) - x[:, 2]], axis=1)
+
+    def clip(x):
+        return np.concatenate([x[:, :1], np.clip(x[:, 1:], -700.0, 5.0)], axis=1)
+
+    def norm(f, x):
+        """Largest residual; the diode current's and g's do not count while the junction is off."""
+        off = (x[:, 1] < -600) & (x[:, 2] < -600)
+        return np.maximum(np.abs(f[:, 0]), np.where(off, 0.0, np.abs(f[:, 1:]).max(axis=1)))
 
     h = 1e-6
-    jac = np.empty((4, n))  # a11, a21, a12, a22 (finite differences)
+    eye = h * np.eye(_K)
+    jac = np.empty((n, _K, _K))
     valid = np.zeros(n, dtype=bool)
 
-    def with_jacobian(rows, lf, lr, f1, f2):
-        """Residuals at (lf, lr) (``f1`` None: evaluate them too) and the Jacobian there."""
+    def with_jacobian(rows, x, f):
+        """Residuals at x (``f`` None: evaluate them too) and the Jacobian there."""
         m = rows.size
-        if f1 is None:
-            r1, r2 = resid(np.concatenate([rows, rows, rows]), np.concatenate([lf, lf + h, lf]),
-                           np.concatenate([lr, lr, lr + h]))
-            f1, f2, r1, r2 = r1[:m], r2[:m], r1[m:], r2[m:]
-        else:
-            r1, r2 = resid(np.concatenate([rows, rows]), np.concatenate([lf + h, lf]), np.concatenate([lr, lr + h]))
-        jac[:, rows] = (r1[:m] - f1) / h, (r2[:m] - f2) / h, (r1[m:] - f1) / h, (r2[m:] - f2) / h
+        trial = [x + eye[i] for i in range(_K)] if f is not None else [x] + [x + eye[i] for i in range(_K)]
+        r = resid(np.tile(rows, len(trial)), np.concatenate(trial)).reshape(len(trial), m, _K)
+        if f is None:
+            f, r = r[0], r[1:]
+        jac[rows] = np.moveaxis((r - f[None]) / h, 0, 2)
         valid[rows] = True
-        return f1, f2
+        return f
 
     every = np.arange(n)
-    lf, lr = (np.log(mdl.j.ie_q), np.full(n, -700.0)) if start is None else start
-    lr = np.clip(lr + resid(every, lf, lr)[1], -700.0, 5.0)  # the diode current the present voltages give
-
-    def norm(f1, f2, lr_):
-        return np.maximum(np.abs(f1), np.where(lr_ < -600, 0.0, np.abs(f2)))
-
-    if iterations > 0:
-        f1, f2 = with_jacobian(every, lf, lr, None, None)
+    if start is None:
+        x = np.stack([np.log(mdl.j.ie_q), np.full(n, -700.0), np.full(n, -700.0)], axis=1)
+        vbe, vbc = terminals(every, x)
+        ln_f, _, ln_r, g = _device(mdl, a, vbe, vbc)  # the smallest root of the B-C fixed point
+        x[:, 1] = ln_r
+        x[:, 2] = np.log(np.maximum(g, 1e-300))
+        x = clip(x)
     else:
-        f1, f2 = resid(every, lf, lr)
+        x = clip(np.array(start, dtype=float))
+    f = with_jacobian(every, x, None) if iterations > 0 else resid(every, x)
+    limit = np.array([LOG_STEP, LOG_STEP_R, LOG_STEP_R])
     ahead = True  # evaluate the next Jacobian with the trial step
     for _ in range(iterations):
         stale = np.flatnonzero(~valid)
         if stale.size:
-            with_jacobian(stale, lf[stale], lr[stale], f1[stale], f2[stale])
-        a11, a21, a12, a22 = jac
-        det = a11 * a22 - a12 * a21
-        det = np.where(np.abs(det) < 1e-30, 1e-30, det)
-        d1 = np.clip((-f1 * a22 + f2 * a12) / det, -LOG_STEP, LOG_STEP)
-        d2 = np.clip((-a11 * f2 + a21 * f1) / det, -LOG_STEP_R, LOG_STEP_R)
-        old = norm(f1, f2, lr)
+            with_jacobian(stale, x[stale], f[stale])
+        d = -np.linalg.solve(jac + 1e-30 * np.eye(_K), f[..., None])[..., 0]
+        d = np.nan_to_num(d)
+        d *= np.minimum(1.0, 1.0 / np.max(np.abs(d) / limit, axis=1, initial=1e-300))[:, None]
+        old = norm(f, x)
         # a converged row stays where it is while others iterate: a row's result must not
         # depend on which other rows share its batch (further steps could leave its branch)
-        conv = old < 1e-9
-        d1, d2 = np.where(conv, 0.0, d1), np.where(conv, 0.0, d2)
+        d[old < 1e-9] = 0.0
         step = np.ones(n)
-        nf, nr = lf + step * d1, np.clip(lr + step * d2, -700.0, 5.0)
+        nx = clip(x + d)
         valid[:] = False
-        if ahead:
-            g1, g2 = with_jacobian(every, nf, nr, None, None)
-        else:
-            g1, g2 = resid(every, nf, nr)
-        worse = np.flatnonzero(~(norm(g1, g2, nr) <= old))
+        nf = with_jacobian(every, nx, None) if ahead else resid(every, nx)
+        worse = np.flatnonzero(~(norm(nf, nx) <= old))
         ahead = worse.size == 0
         valid[worse] = False
         tries = 1
@@ -587,21 +641,19 @@ def balance(mdl: Model, u: np.ndarray, iterations: int = 30, start=None, with_st
             b = int(np.clip(_BATCH_ROWS // worse.size, 1, 8 - tries))
             tries += b
             sc = step[worse] / (2.0 ** np.arange(1, b + 1))[:, None]  # (b, rows): the next b halvings
-            tf = lf[worse] + sc * d1[worse]
-            tr = np.clip(lr[worse] + sc * d2[worse], -700.0, 5.0)
-            r1, r2 = (x.reshape(b, -1) for x in resid(np.tile(worse, b), tf.ravel(), tr.ravel()))
-            good = norm(r1, r2, tr) <= old[worse]
+            tx = clip((x[worse][None] + sc[..., None] * d[worse][None]).reshape(-1, _K)).reshape(b, -1, _K)
+            r = resid(np.tile(worse, b), tx.reshape(-1, _K)).reshape(b, -1, _K)
+            good = norm(r.reshape(-1, _K), tx.reshape(-1, _K)).reshape(b, -1) <= old[worse]
             done = good.any(axis=0)
             pick = np.where(done, np.argmax(good, axis=0), b - 1), np.arange(worse.size)
-            step[worse], nf[worse], nr[worse] = sc[pick], tf[pick], tr[pick]
-            g1[worse], g2[worse] = r1[pick], r2[pick]
+            step[worse], nx[worse], nf[worse] = sc[pick], tx[pick], r[pick]
             worse = worse[~done]
-        lf, lr, f1, f2 = nf, nr, g1, g2
-        if np.all(norm(f1, f2, lr) < 1e-9):
+        x, f = nx, nf
+        if np.all(norm(f, x) < 1e-9):
             break
-    ok = norm(f1, f2, lr) < BALANCE_TOL
-    v = volts(lf, lr)
-    return (v, (lf, lr), ok) if with_state else v
+    ok = norm(f, x) < BALANCE_TOL
+    v = volts(x)
+    return (v, x, ok) if with_state else v
 
 
 def rest(mdl: Model) -> np.ndarray:
@@ -617,32 +669,34 @@ def equilibrium(mdl: Model, steps: int = 14):
     """Running state (ln a, node voltages): sigma = 0 with the bias balanced at that amplitude.
 
     sigma is scanned along the balanced bias curve (amplitude rising from the
-    kick, the balance warm-started from the previous amplitude).  There may be
-    several roots (a forward-biased base-collector junction pumps the bias to
-    a second branch); the running point is the largest amplitude where sigma
-    falls through zero, the one a start-up with lagging bias reaches.  It is
-    refined by bisection.  Returns (y, starts, found); ``starts`` is False
-    where sigma < 0 already at rest, ``found`` is False where no running point was
-    found (the verdict is then "does not settle", the cautious side).
+    kick, the balance warm-started from the previous amplitude, so that it
+    follows one branch).  There may be several roots (a forward-biased
+    base-collector junction pumps the bias to a second branch); the running
+    point is the largest amplitude where sigma falls through zero, the one a
+    start-up with lagging bias reaches.  It is refined by bisection.  Returns
+    (y, starts, found, lg): ``starts`` is False where sigma < 0 already at rest,
+    ``found`` is False where no running point was found (the verdict is then
+    "does not settle", the cautious side), ``lg`` is the log of the B-C
+    conductance ratio at the running state (its branch, for :func:`stability`).
     """
     n = mdl.vcc_v.shape[0]
     us = np.linspace(np.log(A0_V), np.log(np.maximum(2 * mdl.vcc_v, 1.0)), U_SCAN, axis=1)
     sig = np.empty((n, U_SCAN))
-    states = []
+    states = np.empty((U_SCAN, n, _K))
     state = None
     good = np.zeros((n, U_SCAN), dtype=bool)
     for k in range(U_SCAN):
         v, state, good[:, k] = balance(mdl, us[:, k], start=state, with_state=True)
         bad = np.flatnonzero(~good[:, k])
-        if bad.size:  # a warm start can land on a wrong branch: start those rows afresh
+        if bad.size:  # a warm start can end where its branch folds: start those rows afresh
             v2, st2, ok2 = balance(_take_model(mdl, bad), us[bad, k], with_state=True)
             fix = bad[ok2]
             v[fix] = v2[ok2]
-            state = (state[0].copy(), state[1].copy())
-            state[0][fix], state[1][fix] = st2[0][ok2], st2[1][ok2]
+            state = state.copy()
+            state[fix] = st2[ok2]
             good[fix, k] = True
-        sig[:, k] = _rates(mdl, us[:, k], v)[0]
-        states.append(state)
+        sig[:, k] = _rates(mdl, us[:, k], v, lg=state[:, 2])[0]
+        states[k] = state
     # roots between amplitudes whose bias balance was solved; failing that, any root
     cross = (sig[:, :-1] > 0) & (sig[:, 1:] <= 0)
     down = cross & good[:, :-1] & good[:, 1:]
@@ -651,22 +705,26 @@ def equilibrium(mdl: Model, steps: int = 14):
     last = np.where(found, U_SCAN - 2 - np.argmax(down[:, ::-1], axis=1), 0)
     rows = np.arange(n)
     lo, hi = us[rows, last], us[rows, last + 1]
-    state = (np.stack([st[0] for st in states])[last, rows], np.stack([st[1] for st in states])[last, rows])
+    state = states[last, rows]
     for _ in range(steps):
         mid = 0.5 * (lo + hi)
         v, state, _ = balance(mdl, mid, start=state, with_state=True)
-        up = _rates(mdl, mid, v)[0] > 0
+        up = _rates(mdl, mid, v, lg=state[:, 2])[0] > 0
         lo = np.where(up, mid, lo)
         hi = np.where(up, hi, mid)
     u = 0.5 * (lo + hi)
-    return np.concatenate([u[:, None], balance(mdl, u, start=state)], axis=1), sig[:, 0] > 0, found
+    v, state, _ = balance(mdl, u, start=state, with_state=True)
+    return np.concatenate([u[:, None], v], axis=1), sig[:, 0] > 0, found, state[:, 2]
 
 
-def stability(mdl: Model, y_eq: np.ndarray) -> np.ndarray:
-    """Eigenvalues (1/s) of the linearised envelope model at the running state, (n, K)."""
+def stability(mdl: Model, y_eq: np.ndarray, lg_eq=None) -> np.ndarray:
+    """Eigenvalues (1/s) of the linearised envelope model at the running state, (n, K).
+
+    ``lg_eq``: the B-C fixed point's branch at the running state (from :func:`equilibrium`).
+    """
     m = mdl.net.c.shape[1]
     h = np.array([1e-4] + [1e-5] * m)
-    f = lambda y: _state_rates(mdl, y)  # noqa: E731
+    f = lambda y: _state_rates(mdl, y, lg_eq)  # noqa: E731
     return np.linalg.eigvals(_fd_jacobian(f, y_eq, f(y_eq), h))
 
 
@@ -756,8 +814,8 @@ def predict(batch: DesignBatch, res, integrate_rows=()) -> Dynamics:
     hy = mna.Hybrid(*(np.asarray(getattr(res.hybrid, k))[run] for k in mna.Hybrid.__dataclass_fields__))
     dc = DcPoint(**{k: np.asarray(getattr(res.dc, k))[run] for k in DcPoint.__dataclass_fields__})
     mdl = build_model(sub, model_of(sub), dc, hy, 2 * np.pi * np.asarray(res.freq_loop_hz)[run])
-    y_eq, grows, found = equilibrium(mdl)
-    lam = stability(mdl, y_eq)
+    y_eq, grows, found, lg_eq = equilibrium(mdl)
+    lam = stability(mdl, y_eq, lg_eq)
     rate = lam.real.max(axis=1)
     stable = grows & found & (rate <= UNSTABLE_REL * np.abs(mdl.sig[:, 0, 0]))
     settles = stable.astype(float)

@@ -70,7 +70,7 @@ def test_rest_point_is_the_engines_dc_point():
 @pytest.mark.parametrize("topology,values", [("colpitts-ce", {}), ("hartley", {"RE1": 100})])
 def test_running_drive_agrees_with_the_steady_state_solver(topology, values):
     _, res, mdl = _model(topology, values)
-    y, starts, found = dy.equilibrium(mdl)
+    y, starts, found, _ = dy.equilibrium(mdl)
     assert starts[0] and found[0]
     assert np.exp(y[0, 0]) == pytest.approx(res.vbe_drive_v[0], rel=0.05)
 
@@ -137,3 +137,27 @@ def test_a_rows_verdict_does_not_depend_on_its_batch_mates():
         one = dy.predict(batch.take(np.array([k])), engine.evaluate_batch(batch.take(np.array([k]))))
         assert np.array_equal(one.amplitude_settles[:1], together.amplitude_settles[k:k + 1], equal_nan=True), k
         assert one.drive_v[0] == pytest.approx(together.drive_v[k], rel=1e-9), k
+
+
+def test_running_drive_of_a_saturating_design_agrees_with_the_steady_state_solver():
+    """A design whose collector swing forward-biases the B-C junction at the running point
+    (found by find on the bench's synthetic drawer; margin about 13).  The bias balance once
+    stalled there (a B-C fixed point with several roots made its residual jump), and the
+    envelope model's running drive came out 35 times the steady-state solver's."""
+    from dataclasses import replace
+
+    from picker.circuit.design import PartInfo
+    from picker.circuit.device import NpnProfile
+
+    npn = NpnProfile(name="npn-quiet", hfe_min=200.0, hfe_max=500.0, ft_hz=100e6, cob_f=3e-12,
+                     vceo_v=30.0, pd_w=0.4)
+    values = {"L1": 56e-6, "C1": 2.4e-9, "C2": 24e-9, "R1": 3830.0, "R2": 511.0, "RE": 665.0,
+              "RC": 3740.0, "CC1": 2e-9, "CC2": 18e-9, "CE": 360e-9}
+    d = replace(make_design("colpitts-ce", values, "breadboard"), npn=npn, parts={"L1": PartInfo(dcr_ohm=0.873)})
+    batch = DesignBatch.from_designs([d])
+    res = engine.evaluate_batch(batch)
+    mdl = dy.build_model(batch, engine.model_of(batch), res.dc, res.hybrid, 2 * np.pi * res.freq_loop_hz)
+    y, starts, found, lg = dy.equilibrium(mdl)
+    assert starts[0] and found[0]
+    assert lg[0] > np.log(dy.G_MIN)  # the B-C junction conducts at the running point
+    assert np.exp(y[0, 0]) == pytest.approx(res.vbe_drive_v[0], rel=0.05)
