@@ -14,7 +14,7 @@ import typer
 
 from picker import units
 from picker.cli.env import get_env
-from picker.cli.output import print_json, print_message, print_table
+from picker.cli.output import print_json, print_message, print_note, print_table
 from picker.errors import PickerError
 from picker.store import (
     SCHEMA_VERSION,
@@ -29,6 +29,7 @@ from picker.store import (
     read_stock_csv,
     write_stock_csv,
 )
+from picker.store.builds import reserved_holders
 from picker.store.csvio import stock_csv_text
 from picker.store.engine import display_url, resolve_db_url
 from picker.store.ledger import describe
@@ -257,7 +258,13 @@ def adjust(
         before = part.qty
         change_qty(session, part, int(delta), reason)
         text = describe(part)
+        holders = reserved_holders(session, part_id)
     print_message(env, f"{text}: {before} -> {part.qty}")
+    held = sum(q for _, _, q in holders)
+    if part.qty < held:  # the count stays true; the builds holding the part are now short
+        names = ", ".join(f"{i} ({name}, {q})" for i, name, q in holders)
+        print_note(env, f"part {part_id} now has {part.qty} on hand but reserved builds hold {held}: {names}; "
+                        f"'picker build done' will refuse them until you restock {held - part.qty} or cancel one")
 
 
 @app.command("history")

@@ -119,6 +119,16 @@ def reserved_qty(session: Session, part_ids=None) -> dict[int, int]:
     return {int(pid): int(q) for pid, q in session.execute(stmt).all() if q}
 
 
+def reserved_holders(session: Session, part_id: int) -> list[tuple[int, str, int]]:
+    """Reserved builds holding ``part_id``: (build id, name, pieces held), oldest first."""
+    stmt = (select(BuildRow.id, BuildRow.name, func.sum(BuildLineRow.qty))
+            .join(BuildLineRow, BuildRow.id == BuildLineRow.build_id)
+            .where(BuildRow.status == "reserved", BuildLineRow.part_id == part_id)
+            .group_by(BuildRow.id, BuildRow.name)
+            .order_by(BuildRow.id))
+    return [(int(i), str(n), int(q)) for i, n, q in session.execute(stmt).all() if q]
+
+
 def _record(row: BuildRow) -> BuildRecord:
     lines = []
     for ln in row.lines:

@@ -230,3 +230,23 @@ def test_design_file_with_nan(found, tmp_path):
     f.write_text('{"format": "picker-design/1", "vcc_v": NaN}')
     assert_user_error(run("build", "new", "--design", f, "--boards", "1", "--name", "x"),
                       f"--design {f}: NaN is not a number a saved design may hold")
+
+
+def test_adjusting_a_reserved_part_below_its_reservation_keeps_the_count_and_names_the_builds(found):
+    """The count follows what is really in the drawer; the note says which reserved builds are
+    now short, and ``build done`` refuses the short one with nothing consumed."""
+    run, cands = found
+    pid = cands[0]["parts"]["L1"]["part_id"]
+    assert run("build", "new", "--from-find", "1", "--boards", "4", "--name", "club kits").exit_code == 0
+    before = _qty(run)
+    r = run("stock", "adjust", str(pid), "-18", "--reason", "used for a repair")
+    assert r.exit_code == 0, r.stderr
+    assert _qty(run)[pid] == before[pid] - 18 == 2
+    assert f"part {pid} now has 2 on hand but reserved builds hold 4: 1 (club kits, 4)" in r.stderr
+    assert "restock 2" in r.stderr
+    ok = run("stock", "adjust", str(pid), "+2", "--reason", "restocked")
+    assert ok.exit_code == 0 and "reserved builds hold" not in ok.stderr  # 4 on hand covers the 4 held
+    run("stock", "adjust", str(pid), "-1", "--reason", "dropped one")
+    d = run("build", "done", "1")
+    assert_user_error(d, "below zero")
+    assert _qty(run) == {**before, pid: 3}
