@@ -41,7 +41,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import special
+from scipy import sparse, special
 from scipy.integrate import solve_ivp
 
 from picker.circuit import envelope, mna
@@ -774,6 +774,90 @@ def simulate_one(mdl: Model, row: int, y_start: np.ndarray, t_end_s: float, samp
     return t, np.exp(np.interp(t, sol.t, sol.y[0])), sol
 
 
+def simulate_many(mdl: Model, rows: np.ndarray, y_start: np.ndarray, t_end_s: np.ndarray,
+                  stop_below: np.ndarray, samples: int = 2000):
+    """Integrate several designs of the model together (BDF, block-diagonal Jacobian).
+
+    One stacked system: the right-hand side is evaluated for every design in one
+    call of the averaged model, and the finite-difference Jacobian takes one
+    call per state (the designs do not couple).  The steps are shared, so the
+    designs should have bias time constants of one order.  A design whose drive
+    falls below its ``stop_below`` (volt) after having been above it has
+    collapsed: it leaves the integration there, and the others go on.
+    Returns per design (times, drive amplitudes) from 0 to its own ``t_end_s``
+    or its collapse, which designs collapsed, and which were decided (all but
+    those still running when MANY_CALLS evaluations were spent).
+    """
+    rows = np.asarray(rows)
+    m, k = y_start.shape
+    y = y_start.astype(float).copy()
+    seg_t: list[list] = [[] for _ in range(m)]
+    seg_u: list[list] = [[] for _ in range(m)]
+    collapsed = np.zeros(m, dtype=bool)
+    decided = np.ones(m, dtype=bool)
+    calls = [0]
+    live = np.arange(m)
+    t0, t_stop = 0.0, float(np.max(t_end_s))
+    max_step = float(np.min(t_end_s)) / 400
+    while live.size and t0 < t_stop:
+        sub = _take_model(mdl, rows[live])
+        mm = live.size
+
+        def rhs(_t, yy, sub=sub, mm=mm):
+            calls[0] += 1
+            if calls[0] > MANY_CALLS:
+                raise _OutOfCalls
+            y2 = yy.reshape(mm, k)
+            return _with_floor(sub, y2, _state_rates(sub, y2)).ravel()
+
+        events = []
+        for j in range(mm):
+            def fell(_t, yy, j=j, level=float(np.log(stop_below[live[j]]))):
+                return yy[j * k] - level
+            fell.direction, fell.terminal = -1, True
+            events.append(fell)
+        pattern = sparse.block_diag([np.ones((k, k))] * mm, format="csr")
+        try:
+            sol = solve_ivp(rhs, (t0, t_stop), y[live].ravel(), method="BDF", rtol=1e-3, atol=1e-4,
+                            max_step=max_step, jac_sparsity=pattern, events=events)
+        except _OutOfCalls:  # the designs still running stay undecided
+            decided[live] = False
+            break
+        for j, i in enumerate(live):
+            seg_t[i].append(sol.t)
+            seg_u[i].append(sol.y[j * k])
+        y[live] = sol.y[:, -1].reshape(mm, k)
+        t0 = float(sol.t[-1])
+        hit = np.array([j for j, te in enumerate(sol.t_events) if te.size], dtype=int)
+        if sol.status != 1 or hit.size == 0:
+            break
+        collapsed[live[hit]] = True
+        live = np.delete(live, hit)
+    out = []
+    for i in range(m):
+        if not seg_t[i]:
+            out.append((np.zeros(1), np.full(1, A0_V)))
+            continue
+        tt, uu = np.concatenate(seg_t[i]), np.concatenate(seg_u[i])
+        t = np.linspace(0.0, min(float(t_end_s[i]), float(tt[-1])), samples)
+        out.append((t, np.exp(np.interp(t, tt, uu))))
+    return out, collapsed, decided
+
+
+class _OutOfCalls(Exception):
+    """simulate_many spent its MANY_CALLS evaluations."""
+
+
+#: Evaluations of the stacked right-hand side one simulate_many call may spend (a settling
+#: group takes a few hundred; a group with an envelope that keeps swinging can take tens of
+#: thousands, and its undecided designs keep the cautious linear verdict).
+MANY_CALLS = 1500
+
+
+#: Designs integrated together have end times within this factor of each other.
+BATCH_SPAN = 3.0
+
+
 def _take_model(mdl: Model, rows: np.ndarray) -> Model:
     net = mdl.net
     sub_net = SlowNetwork(g=net.g[rows], c=net.c[rows], b=net.b[rows], nodes=net.nodes,
@@ -792,16 +876,21 @@ BURSTS_SEEN = 3
 UNSTABLE_REL = 1e-3
 
 
-def predict(batch: DesignBatch, res, integrate_rows=()) -> Dynamics:
+def predict(batch: DesignBatch, res, integrate_rows=(), confirm: bool = False) -> Dynamics:
     """Envelope dynamics of every design of a batch, given its engine result ``res``.
 
-    Without ``integrate``: the running point of the averaged model and the
-    eigenvalues of its linearisation decide, for every design that starts,
-    whether the amplitude settles (all real parts negative) or not (bursts,
-    or a growing envelope modulation).  The rows in ``integrate_rows`` are
-    also integrated from a 1 mV start (``A0_V``), which gives the settling
-    time and the burst period and overrides the linear verdict where they
-    disagree (a start-up that overshoots into bursts).
+    The running point of the averaged model and the eigenvalues of its
+    linearisation decide, for every design that starts, whether the amplitude
+    settles (all real parts negative) or not (bursts, or a growing envelope
+    modulation).  The rows in ``integrate_rows`` are also integrated from a
+    1 mV start (``A0_V``), which gives the settling time and the burst period
+    and overrides the linear verdict where they disagree (a start-up that
+    overshoots into bursts).  With ``confirm``, every row the linear verdict
+    calls unsettled is integrated as well and the integration decides: where
+    the B-C junction conducts at the running point the running point itself
+    can be missed (the bias balance has no solution near a fold of its
+    branch), and the linear verdict is then not to be trusted.  The envelopes
+    of ``integrate_rows`` are returned, in that order.
     """
     n = batch.n
     out = {k: np.full(n, np.nan) for k in ("amplitude_settles", "growth_rate", "settle_time_s",
@@ -822,23 +911,39 @@ def predict(batch: DesignBatch, res, integrate_rows=()) -> Dynamics:
     settle_t = np.full(run.size, np.nan)
     period = np.full(run.size, np.nan)
     pos = {int(r): k for k, r in enumerate(run)}
-    todo = [pos[int(r)] for r in integrate_rows if int(r) in pos]
-    if todo:
-        y0 = np.concatenate([np.full((run.size, 1), np.log(A0_V)), rest(mdl)], axis=1)
-        sig0 = np.maximum(np.abs(mdl.sig[:, R_GRID.searchsorted(1.0), 0]), 1e-9)
-        t_up = np.log(np.exp(y_eq[:, 0]) / A0_V) / sig0
+    shown = [pos[int(r)] for r in integrate_rows if int(r) in pos]
+    extra = sorted(set(np.flatnonzero(grows & ~stable).tolist()) - set(shown)) if confirm else []
+    todo = np.array(shown + extra, dtype=int)
+    if todo.size:
+        y0 = np.concatenate([np.full((todo.size, 1), np.log(A0_V)), rest(_take_model(mdl, todo))], axis=1)
+        sig0 = np.maximum(np.abs(mdl.sig[todo, R_GRID.searchsorted(1.0), 0]), 1e-9)
+        t_up = np.log(np.exp(y_eq[todo, 0]) / A0_V) / sig0
+        t_end = t_up + np.where(stable[todo], SETTLE_HORIZON, BURST_HORIZON) * mdl.tau_s[todo]
+        low = envelope.BURST_LOW * 0.5 * np.exp(y_eq[todo, 0])
         f_hz = np.asarray(res.freq_hz)[run]
-        for k in todo:  # designs integrate one by one: each needs its own steps
-            horizon = SETTLE_HORIZON if stable[k] else BURST_HORIZON
-            t_end = float(t_up[k] + horizon * mdl.tau_s[k])
-            low = None if stable[k] else envelope.BURST_LOW * 0.5 * float(np.exp(y_eq[k, 0]))
-            t, a, _ = simulate_one(mdl, k, y0[k], t_end, stop_below=low)
+
+        def judge(k, t, a):
             cls = envelope.classify(t, a, 0.0, 1.0 / f_hz[k])
             settles[k] = float(cls.settle_time_s is not None and not cls.bursts)
             settle_t[k] = cls.settle_time_s if cls.settle_time_s is not None else np.nan
             period[k] = cls.burst_period_s if cls.burst_period_s is not None else np.nan
+
+        for i, k in enumerate(shown):  # one by one: a burst period needs several collapses
+            t, a, _ = simulate_one(mdl, k, y0[i], float(t_end[i]), stop_below=None if stable[k] else float(low[i]))
+            judge(k, t, a)
             env_t.append(t)
             env_a.append(a / np.exp(y_eq[k, 0]))
+        rest_ = np.arange(len(shown), todo.size)
+        order = rest_[np.argsort(t_end[rest_])]
+        while order.size:  # the others together, end times within BATCH_SPAN of each other
+            group = order[t_end[order] <= BATCH_SPAN * t_end[order[0]]]
+            order = order[group.size:]
+            runs, fell, decided = simulate_many(mdl, todo[group], y0[group], t_end[group], low[group])
+            for i, (t, a), f, ok in zip(group, runs, fell, decided):
+                if f:  # collapsed after start-up: it bursts
+                    settles[todo[i]] = 0.0
+                elif ok:
+                    judge(int(todo[i]), t, a)
     out["amplitude_settles"][run] = np.where(grows, settles, np.nan)
     out["growth_rate"][run] = rate
     out["settle_time_s"][run] = settle_t

@@ -106,12 +106,14 @@ def check_design(design: Design, temps: tuple[float, ...] | None = None,
     Corners are hFE min/typ/max at each temperature of ``temps`` (default: the
     design's own temperature only).  Row 0 is the nominal evaluation.  The
     envelope dynamics are judged at every corner; with ``integrate`` the
-    nominal row's envelope is also integrated (settling time, burst period).
+    nominal row's envelope is also integrated (settling time, burst period),
+    and so is every corner the linearised model calls unsettled (the
+    integration decides, see :func:`picker.circuit.dynamics.predict`).
     """
     temps = (design.temp_c,) + tuple(t for t in (temps or ()) if t != design.temp_c)
     batch, combos = corner_batch([design], temps)
     res = evaluate_batch(batch)
-    dyn = predict_dynamics(batch, res, integrate_rows=(0,) if integrate else ())
+    dyn = predict_dynamics(batch, res, integrate_rows=(0,) if integrate else (), confirm=integrate)
     return _summarise(design, batch, res, combos, dyn)
 
 
@@ -120,7 +122,8 @@ def check_designs(designs: list[Design], temps: tuple[float, ...]) -> list[Evalu
 
     Lighter than :func:`check_design` for the search's final stage: the steady
     state and the envelope dynamics are solved on each design's nominal row
-    only; corners carry the small-signal margin and frequency, and their
+    only (a nominal row the linearised model calls unsettled is integrated to
+    decide); corners carry the small-signal margin and frequency, and their
     ``amplitude_settles`` is None.
     """
     if not designs:
@@ -132,7 +135,7 @@ def check_designs(designs: list[Design], temps: tuple[float, ...]) -> list[Evalu
     nominal[::per] = True
     res = evaluate_batch(batch, large_signal_rows=nominal)
     rows = np.flatnonzero(nominal)
-    dyn_nom = predict_dynamics(batch.take(rows), take_rows(res, rows))
+    dyn_nom = predict_dynamics(batch.take(rows), take_rows(res, rows), confirm=True)
     out = []
     for k, design in enumerate(designs):
         sl = np.arange(k * per, (k + 1) * per)

@@ -99,3 +99,51 @@ def test_suggested_remedies_settle_in_ngspice(outcomes):
     # and the tool agrees with itself: each remedy is predicted to settle
     assert all(ev.amplitude_settles for _, _, ev, _ in results)
     assert all(np.isfinite(ev.margin_worst) and ev.margin_worst >= MIN_MARGIN for _, _, ev, _ in results)
+
+
+def _corner_variant(design, hfe: float, temp_c: float):
+    """The design with its transistor pinned at ``hfe`` and run at ``temp_c`` (one corner as a design)."""
+    from dataclasses import replace
+
+    npn = replace(design.npn, hfe_min=hfe * 0.999, hfe_max=hfe * 1.001, hfe_typ=hfe)
+    return replace(design, npn=npn, temp_c=temp_c)
+
+
+def _saturating_colpitts():
+    """The demo store's checked design (its collector swing reaches saturation at every corner):
+    a common-emitter Colpitts at 455 kHz whose linearised envelope model calls six of its
+    nine hFE/temperature corners unsettled, while the integrated envelope and ngspice settle."""
+    from dataclasses import replace
+
+    from picker.circuit.design import PartInfo
+    from picker.circuit.device import NpnProfile
+
+    npn = NpnProfile(name="npn-general", hfe_min=100, hfe_max=300, ft_hz=250e6, cob_f=4e-12, vceo_v=40, pd_w=0.5)
+    values = {"R1": 3900, "R2": 560, "RC": 2700, "RE": 1200, "CE": 220e-9, "CC1": 2.7e-9, "C1": 1.5e-9,
+              "L1": 100e-6, "C2": 6.8e-9, "CC2": 22e-9}
+    return replace(make_design("colpitts-ce", values, "breadboard"), npn=npn, parts={"L1": PartInfo(dcr_ohm=0.83)})
+
+
+def _verify_variant(entry):
+    hfe, temp_c = entry
+    d = _corner_variant(_saturating_colpitts(), hfe, temp_c)
+    return entry, verify(d, check_design(d)).as_json()
+
+
+def test_corners_the_linear_verdict_doubts_are_integrated_and_settle_as_in_ngspice(ngspice_bin):
+    from picker.circuit import engine
+    from picker.circuit.dynamics import predict
+    from picker.circuit.evaluate import corner_batch
+
+    d = _saturating_colpitts()
+    batch, combos = corner_batch([d], (d.temp_c, 0.0, 50.0))
+    linear = predict(batch, engine.evaluate_batch(batch))
+    doubted = [combos[k] for k in np.flatnonzero(linear.amplitude_settles == 0.0)]
+    assert len(doubted) >= 2  # the case this test is about: the linear verdict says "bursts"
+    ev = check_design(d, (0.0, 50.0))
+    assert [c.amplitude_settles for c in ev.corners] == [True] * len(combos)
+    # ngspice, two of the doubted corners, each simulated as a design pinned at that corner
+    with ProcessPoolExecutor(max_workers=2) as pool:
+        sims = list(pool.map(_verify_variant, doubted[:2]))
+    for corner, sim in sims:
+        assert not sim["bursts"] and sim["settle_time_s"] is not None, (corner, sim)
