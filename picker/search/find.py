@@ -590,7 +590,8 @@ def _refine_stream(pools, spec: FindSpec, drawer: Drawer, stats) -> list[dict]:
             pend.append([int(k), nom, lb, np.ones(lb.size, dtype=bool)])
         take = 1
         while any(p[3].any() for p in pend):
-            cut = _kth(best, need)
+            low = _k_smallest(best, need)
+            cut = np.inf if low is None else float(low[-1])
             for k, nom, lb, alive in pend:
                 tank = pools[k]["it"][nom["rows"]]
                 alive &= lb <= np.minimum(best[k][tank], cut)
@@ -607,7 +608,8 @@ def _refine_stream(pools, spec: FindSpec, drawer: Drawer, stats) -> list[dict]:
                 sc = score(spec, got["err"][ok], worst[ok], pools[k]["cost"][got["rows"][ok]])
                 np.minimum.at(best[k], tank[pick][ok], sc)
             take *= 2
-        top_now = _top_sum(best, need)
+        low = _k_smallest(best, need)
+        top_now = np.inf if low is None else float(low.sum())
         stale = stale + 1 if np.isfinite(top_now) and top_now >= top_before else 0
         top_before = top_now
         if stale >= STALE_CHUNKS or start + REFINE_CHUNK >= REFINE_BUDGET:
@@ -618,22 +620,18 @@ def _refine_stream(pools, spec: FindSpec, drawer: Drawer, stats) -> list[dict]:
     return [{k: np.concatenate([x[k] for x in ps]) for k in ps[0]} if ps else dict(empty) for ps in parts]
 
 
-def _top_sum(best: list[np.ndarray], k: int) -> float:
-    """Sum of the k smallest finite values over the arrays (inf when fewer than k)."""
+def _k_smallest(best: list[np.ndarray], k: int) -> np.ndarray | None:
+    """The k smallest finite values over the arrays, the k-th last (None when fewer than k)."""
     v = np.concatenate([b[np.isfinite(b)] for b in best])
-    return float(np.partition(v, k - 1)[:k].sum()) if v.size >= k else np.inf
+    if v.size < k:
+        return None
+    return np.partition(v, k - 1)[:k]  # the k-th smallest lands at k - 1, the smaller before it
 
 
 def _admissible(r: dict, spec: FindSpec) -> np.ndarray:
     """Refined rows that may be ranked: worst-case margin at least min_margin and a tank
     not loaded below the full check's MIN_LOADED_Q (which would reject it)."""
     return (r["worst"] >= spec.min_margin) & (r["loaded_q"] >= MIN_LOADED_Q)
-
-
-def _kth(best: list[np.ndarray], k: int) -> float:
-    """The k-th smallest finite value over the arrays (inf when fewer than k)."""
-    v = np.concatenate([b[np.isfinite(b)] for b in best])
-    return float(np.partition(v, k - 1)[k - 1]) if v.size >= k else np.inf
 
 
 def _lowest_per_group(idx: np.ndarray, key: np.ndarray, group: np.ndarray, m: int) -> np.ndarray:
