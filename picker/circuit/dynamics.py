@@ -889,8 +889,11 @@ def predict(batch: DesignBatch, res, integrate_rows=(), confirm: bool = False) -
     calls unsettled is integrated as well and the integration decides: where
     the B-C junction conducts at the running point the running point itself
     can be missed (the bias balance has no solution near a fold of its
-    branch), and the linear verdict is then not to be trusted.  The envelopes
-    of ``integrate_rows`` are returned, in that order.
+    branch), and the linear verdict is then not to be trusted.  Those rows are
+    integrated together (shared steps and one call budget, see
+    :func:`simulate_many`), so their verdicts depend on each other: confirm
+    only a batch of one design's rows (its corners).  The envelopes of
+    ``integrate_rows`` are returned, in that order.
     """
     n = batch.n
     out = {k: np.full(n, np.nan) for k in ("amplitude_settles", "growth_rate", "settle_time_s",

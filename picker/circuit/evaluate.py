@@ -122,8 +122,9 @@ def check_designs(designs: list[Design], temps: tuple[float, ...]) -> list[Evalu
 
     Lighter than :func:`check_design` for the search's final stage: the steady
     state and the envelope dynamics are solved on each design's nominal row
-    only (a nominal row the linearised model calls unsettled is integrated to
-    decide); corners carry the small-signal margin and frequency, and their
+    only, and by the linearised model alone (no integration: a design it calls
+    unsettled is dropped, the cautious side; ``check`` integrates to confirm);
+    corners carry the small-signal margin and frequency, and their
     ``amplitude_settles`` is None.
     """
     if not designs:
@@ -135,7 +136,7 @@ def check_designs(designs: list[Design], temps: tuple[float, ...]) -> list[Evalu
     nominal[::per] = True
     res = evaluate_batch(batch, large_signal_rows=nominal)
     rows = np.flatnonzero(nominal)
-    dyn_nom = predict_dynamics(batch.take(rows), take_rows(res, rows), confirm=True)
+    dyn_nom = predict_dynamics(batch.take(rows), take_rows(res, rows))
     out = []
     for k, design in enumerate(designs):
         sl = np.arange(k * per, (k + 1) * per)
