@@ -22,10 +22,11 @@ bursts.  When it is fast enough, the two settle together.
 
 For every design of a batch, the running point of the two together and the
 eigenvalues of the model linearised there decide whether it settles
-(:func:`predict`).  The designs ``check`` reports on are also integrated with
-``scipy.integrate.solve_ivp`` (one by one, LSODA), which gives the settling
-time and the burst period; that envelope is classified with the same rules
-used on ngspice's waveforms (:mod:`picker.circuit.envelope`).
+(:func:`predict`).  The design ``check`` reports on is also integrated with
+``scipy.integrate.solve_ivp`` (LSODA), which gives the settling time and the
+burst period, and so are the corners the linearised verdict calls unsettled
+(all of them together, :func:`simulate_many`); those envelopes are classified
+with the same rules used on ngspice's waveforms (:mod:`picker.circuit.envelope`).
 
 References
 ----------
@@ -380,7 +381,11 @@ def _device_tracked(mdl: Model, rows, a, vbe, vbc, lg, iterations: int = 6):
         g = _device_with(mdl, rr, aa, be, bc, np.concatenate([lg, lg + h]))[3]
         f = np.log(np.maximum(g, 1e-300)) - np.concatenate([lg, lg + h])
         d = (f[m:] - f[:m]) / h
-        step = np.clip(-f[:m] / np.where(d < -1e-12, d, -1e-12), -LOG_STEP_R, LOG_STEP_R)
+        # Newton with the true slope (the root the balance converged to may have either sign);
+        # a row already on its root, or with no usable slope, stays
+        move = (np.abs(f[:m]) > 1e-12) & (np.abs(d) > 1e-12)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            step = np.where(move, np.clip(-f[:m] / d, -LOG_STEP_R, LOG_STEP_R), 0.0)
         lg = np.clip(lg + step, -700.0, 5.0)
     return _device_with(mdl, rows, a, vbe, vbc, lg)
 
@@ -622,7 +627,9 @@ def balance(mdl: Model, u: np.ndarray, iterations: int = 30, start=None, with_st
         stale = np.flatnonzero(~valid)
         if stale.size:
             with_jacobian(stale, x[stale], f[stale])
-        d = -np.linalg.solve(jac + 1e-30 * np.eye(_K), f[..., None])[..., 0]
+        # a tiny ridge, relative to each row's Jacobian, keeps an exactly singular row solvable
+        ridge = 1e-14 * (np.abs(jac).max(axis=(1, 2)) + 1e-300)
+        d = -np.linalg.solve(jac + ridge[:, None, None] * np.eye(_K), f[..., None])[..., 0]
         d = np.nan_to_num(d)
         d *= np.minimum(1.0, 1.0 / np.max(np.abs(d) / limit, axis=1, initial=1e-300))[:, None]
         old = norm(f, x)
@@ -798,7 +805,7 @@ def simulate_many(mdl: Model, rows: np.ndarray, y_start: np.ndarray, t_end_s: np
     calls = [0]
     live = np.arange(m)
     t0, t_stop = 0.0, float(np.max(t_end_s))
-    max_step = float(np.min(t_end_s)) / 400
+    max_step = t_stop / 400
     while live.size and t0 < t_stop:
         sub = _take_model(mdl, rows[live])
         mm = live.size
@@ -828,10 +835,15 @@ def simulate_many(mdl: Model, rows: np.ndarray, y_start: np.ndarray, t_end_s: np
             seg_u[i].append(sol.y[j * k])
         y[live] = sol.y[:, -1].reshape(mm, k)
         t0 = float(sol.t[-1])
+        if sol.status < 0:  # the integration failed: the designs still running stay undecided
+            decided[live] = False
+            break
         hit = np.array([j for j, te in enumerate(sol.t_events) if te.size], dtype=int)
         if sol.status != 1 or hit.size == 0:
             break
-        collapsed[live[hit]] = True
+        # a collapse after the design's own end time is not counted (its record ends there), so
+        # that a design's verdict does not depend on how far its group mates run
+        collapsed[live[hit]] = t0 <= t_end_s[live[hit]]
         live = np.delete(live, hit)
     out = []
     for i in range(m):
@@ -848,9 +860,10 @@ class _OutOfCalls(Exception):
     """simulate_many spent its MANY_CALLS evaluations."""
 
 
-#: Evaluations of the stacked right-hand side one simulate_many call may spend (a settling
-#: group takes a few hundred; a group with an envelope that keeps swinging can take tens of
-#: thousands, and its undecided designs keep the cautious linear verdict).
+#: Evaluations of the stacked right-hand side one simulate_many call may spend (the demo's
+#: settling group of 6 corners took about 1,000; a group with an envelope that keeps
+#: swinging can take tens of thousands, and its undecided designs keep the cautious linear
+#: verdict).
 MANY_CALLS = 1500
 
 

@@ -264,7 +264,8 @@ def adjust(
     if part.qty < held:  # the count stays true; the builds holding the part are now short
         names = ", ".join(f"{i} ({name}, {q})" for i, name, q in holders)
         print_note(env, f"part {part_id} now has {part.qty} on hand but reserved builds hold {held}: {names}; "
-                        f"'picker build done' will refuse them until you restock {held - part.qty} or cancel one")
+                        f"restock {held - part.qty}, or cancel builds: 'picker build done' refuses a build "
+                        f"that needs more than is on hand")
 
 
 @app.command("history")

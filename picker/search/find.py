@@ -621,7 +621,7 @@ def _refine_stream(pools, spec: FindSpec, drawer: Drawer, stats) -> list[dict]:
 
 
 def _k_smallest(best: list[np.ndarray], k: int) -> np.ndarray | None:
-    """The k smallest finite values over the arrays, the k-th last (None when fewer than k)."""
+    """The k smallest finite values over the arrays, the k-th smallest last (None when fewer than k)."""
     v = np.concatenate([b[np.isfinite(b)] for b in best])
     if v.size < k:
         return None

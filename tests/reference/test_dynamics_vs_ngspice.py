@@ -142,6 +142,11 @@ def test_corners_the_linear_verdict_doubts_are_integrated_and_settle_as_in_ngspi
     assert len(doubted) >= 2  # the case this test is about: the linear verdict says "bursts"
     ev = check_design(d, (0.0, 50.0))
     assert [c.amplitude_settles for c in ev.corners] == [True] * len(combos)
+    # the doubted corners are integrated together: a corner's verdict must not depend on
+    # which other temperatures are checked with it
+    fewer = {(c.hfe, c.temp_c): c.amplitude_settles for c in check_design(d, (0.0,)).corners}
+    assert fewer == {(c.hfe, c.temp_c): c.amplitude_settles for c in ev.corners if (c.hfe, c.temp_c) in fewer}
+    assert len(fewer) == 6
     # ngspice, two of the doubted corners, each simulated as a design pinned at that corner
     with ProcessPoolExecutor(max_workers=2) as pool:
         sims = list(pool.map(_verify_variant, doubted[:2]))
