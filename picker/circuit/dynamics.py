@@ -352,12 +352,12 @@ def _device(mdl: Model, a, vbe, vbc, steps: int = 8, rows=None, lg0=None):
     so one call can evaluate several trial states of the same designs.
     Returns (ln_f, r, ln_r, g); see :func:`junction_be` and :func:`junction_bc`.
     """
+    if lg0 is not None:
+        return _device_tracked(mdl, np.arange(a.shape[0]) if rows is None else rows, a, vbe, vbc, lg0)
     if rows is None:
         rows, j = np.arange(a.shape[0]), mdl.j
     else:
         j = mdl.j.take(rows)
-    if lg0 is not None:
-        return _device_tracked(mdl, rows, a, vbe, vbc, lg0)
     flat = mdl.rho.reshape(-1)
     ln_f, r = junction_be(j, a, vbe)
     rp = _r_part(rows, r)
@@ -376,9 +376,11 @@ def _device_tracked(mdl: Model, rows, a, vbe, vbc, lg, iterations: int = 6):
     lg = np.clip(np.asarray(lg, dtype=float), -700.0, 5.0)
     h = 1e-6
     m = lg.shape[0]
-    rr, aa, be, bc = (np.concatenate([x, x]) for x in (rows, a, vbe, vbc))
+    be = junction_be(mdl.j.take(rows), a, vbe)  # the B-E side does not change with g
+    rr, aa, bc = (np.concatenate([x, x]) for x in (rows, a, vbc))
+    be2 = tuple(np.concatenate([x, x]) for x in be)
     for _ in range(iterations):
-        g = _device_with(mdl, rr, aa, be, bc, np.concatenate([lg, lg + h]))[3]
+        g = _device_with(mdl, rr, aa, None, bc, np.concatenate([lg, lg + h]), be=be2)[3]
         f = np.log(np.maximum(g, 1e-300)) - np.concatenate([lg, lg + h])
         d = (f[m:] - f[:m]) / h
         # Newton with the true slope (the root the balance converged to may have either sign);
@@ -387,7 +389,7 @@ def _device_tracked(mdl: Model, rows, a, vbe, vbc, lg, iterations: int = 6):
         with np.errstate(divide="ignore", invalid="ignore"):
             step = np.where(move, np.clip(-f[:m] / d, -LOG_STEP_R, LOG_STEP_R), 0.0)
         lg = np.clip(lg + step, -700.0, 5.0)
-    return _device_with(mdl, rows, a, vbe, vbc, lg)
+    return _device_with(mdl, rows, a, vbe, vbc, lg, be=be)
 
 
 #: Log-spaced trial values of g scanned for the first root of the B-C fixed point.
@@ -519,15 +521,16 @@ def _fd_jacobian(f, y: np.ndarray, f0: np.ndarray, h: np.ndarray) -> np.ndarray:
 _BATCH_ROWS = 128
 
 
-def _device_with(mdl: Model, rows, a, vbe, vbc, lg):
+def _device_with(mdl: Model, rows, a, vbe, vbc, lg, be=None):
     """Averaged transistor at amplitude ``a`` with the B-C conductance ratio taken as e^lg.
 
     Returns (ln_f, r, ln_r, g) as :func:`_device` does; here ``g`` is the
     conductance ratio that the swing rho(r, e^lg) a gives, so lg is the
-    self-consistent one where log g = lg.
+    self-consistent one where log g = lg.  ``be``: the B-E side (ln_f, r) of
+    :func:`junction_be` when already known (``vbe`` is then not used).
     """
     j = mdl.j.take(rows)
-    ln_f, r = junction_be(j, a, vbe)
+    ln_f, r = junction_be(j, a, vbe) if be is None else be
     rho = _interp(mdl.rho.reshape(-1), _r_part(rows, r), _g_part(np.exp(lg)))
     ln_r, g = _bc(j.log_is, j.vt, j.gm_q, rho * a, vbc)
     return ln_f, r, ln_r, g
@@ -614,7 +617,7 @@ def balance(mdl: Model, u: np.ndarray, iterations: int = 30, start=None, with_st
     if start is None:
         x = np.stack([np.log(mdl.j.ie_q), np.full(n, -700.0), np.full(n, -700.0)], axis=1)
         vbe, vbc = terminals(every, x)
-        ln_f, _, ln_r, g = _device(mdl, a, vbe, vbc)  # the smallest root of the B-C fixed point
+        _, _, ln_r, g = _device(mdl, a, vbe, vbc)  # the smallest root of the B-C fixed point
         x[:, 1] = ln_r
         x[:, 2] = np.log(np.maximum(g, 1e-300))
         x = clip(x)
