@@ -128,20 +128,12 @@ def phase_zero(mat: mna.Matrices, gm_s, omega0, span=3.0, steps=40):
     margin); where no crossing exists, or the best one has Re T <= 0 (phase
     180 degrees), margin is 0 and omega NaN.
     """
-    n = gm_s.shape[0]
-    rows = np.arange(n)
+    rows = np.arange(gm_s.shape[0])
     grid = scan_grid(mat, omega0, span=span)
     t = loop_gain(mat, gm_s, grid)
-    im, re = t.imag, t.real
-    cross = np.signbit(im[:, :-1]) != np.signbit(im[:, 1:])
-    with np.errstate(invalid="ignore", divide="ignore"):
-        frac = im[:, :-1] / (im[:, :-1] - im[:, 1:])
-        re_x = re[:, :-1] + (re[:, 1:] - re[:, :-1]) * frac  # Re T at the crossing, interpolated
-    score = np.where(cross, re_x, -np.inf)
-    j = np.argmax(score, axis=1)
-    found = np.isfinite(score[rows, j])
+    j, found = _best_crossing(t)
     lo, hi = grid[rows, j], grid[rows, j + 1]
-    sign_lo = np.signbit(im[rows, j])
+    sign_lo = np.signbit(t.imag[rows, j])
     for _ in range(steps):  # bisection in log frequency, all designs at once
         mid = np.sqrt(lo * hi)
         tm = loop_gain(mat, gm_s, mid[:, None])[:, 0]
@@ -170,7 +162,8 @@ class SmallSignal:
         return self.margin > 1.0
 
 
-def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, xtol=1e-12, max_steps=60):
+def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, xtol=1e-12, max_steps=60,
+                     near: float | None = None):
     """Phase-zero frequency near a good guess, without the eigenvalue scan.
 
     A log grid of ``points`` over ``omega_guess`` / ``span`` .. * ``span``
@@ -181,26 +174,28 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
     regula falsi lands on an end; each row leaves the batch as it converges
     (typically 5-10 steps; at most ``max_steps``).  For searches and Monte
     Carlo, where the tank's frequency is already known to a few per cent.
+
+    With ``near`` (a factor above 1), the guess is taken to be within that factor
+    of the crossing (a corner or a sample of a design whose own crossing it is):
+    a 3-point grid over guess / near .. * near brackets it first, and only the rows
+    without a crossing of positive Re T there get the full grid.
     Returns (omega, margin) like :func:`phase_zero`.
     """
     n = gm_s.shape[0]
-    rows = np.arange(n)
-    grid = omega_guess[:, None] * np.geomspace(1 / span, span, points)[None, :]
-    t = loop_gain(mat, gm_s, grid)
-    im, re = t.imag, t.real
-    cross = np.signbit(im[:, :-1]) != np.signbit(im[:, 1:])
-    with np.errstate(invalid="ignore", divide="ignore"):
-        frac = im[:, :-1] / (im[:, :-1] - im[:, 1:])
-        re_x = re[:, :-1] + (re[:, 1:] - re[:, :-1]) * frac
-    score = np.where(cross, re_x, -np.inf)
-    j = np.argmax(score, axis=1)
-    found = np.isfinite(score[rows, j])
+    if near is None:
+        w_a, w_b, ta, tb, found = _bracket(mat, gm_s, omega_guess, span, points)
+    else:
+        w_a, w_b, ta, tb, found = _bracket(mat, gm_s, omega_guess, near, 3)
+        redo = np.flatnonzero(~found | (ta.real + tb.real <= 0))
+        if redo.size:
+            got = _bracket(mat, gm_s, omega_guess[redo], span, points, rows=redo)
+            for whole, part in zip((w_a, w_b, ta, tb, found), got):
+                whole[redo] = part
     # Bracket ends in log frequency, T there, and the function refined: -Im(1/T) =
     # Im T / |T|^2, which has the sign (so the bracket and the zero) of Im T but is
     # near linear in frequency across a tank's resonance, where Im T is not; its
     # values at the ends as the Illinois rule scales them.
-    a, b = np.log(grid[rows, j]), np.log(grid[rows, j + 1])
-    ta, tb = t[rows, j], t[rows, j + 1]
+    a, b = np.log(w_a), np.log(w_b)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         fa, fb = _phase_fn(ta), _phase_fn(tb)
     last = np.zeros(n, dtype=np.int8)  # end the previous step replaced: 1 = a, 2 = b, 0 = none
@@ -258,16 +253,42 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
     return np.where(found, w, np.nan), np.where(found, m, 0.0)
 
 
+def _bracket(mat: mna.Matrices, gm_s, omega_guess, span: float, points: int, rows: np.ndarray | None = None):
+    """A log grid of ``points`` over ``omega_guess`` / ``span`` .. * ``span`` (for the batch's
+    ``rows``, default all) and, per row, the grid interval holding the zero of Im T with the
+    largest interpolated Re T: its ends (rad/s), T at them, and whether there is one."""
+    grid = omega_guess[:, None] * np.geomspace(1 / span, span, points)[None, :]
+    t = loop_gain(mat, gm_s, grid, rows=rows)
+    j, found = _best_crossing(t)
+    k = np.arange(j.size)
+    return grid[k, j], grid[k, j + 1], t[k, j], t[k, j + 1], found
+
+
+def _best_crossing(t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per row of T over a sorted frequency grid (n, K): the interval j (between points j
+    and j + 1) where Im T changes sign with the largest interpolated Re T, and whether
+    the row has any such interval."""
+    im, re = t.imag, t.real
+    cross = np.signbit(im[:, :-1]) != np.signbit(im[:, 1:])
+    with np.errstate(invalid="ignore", divide="ignore"):
+        frac = im[:, :-1] / (im[:, :-1] - im[:, 1:])
+        re_x = re[:, :-1] + (re[:, 1:] - re[:, :-1]) * frac  # Re T at the crossing, interpolated
+    score = np.where(cross, re_x, -np.inf)
+    j = np.argmax(score, axis=1)
+    return j, np.isfinite(score[np.arange(j.size), j])
+
+
 def _phase_fn(t: np.ndarray) -> np.ndarray:
     """Im T / |T|^2 (= -Im 1/T): zero, and changing sign, where Im T does."""
     return t.imag / (t.real * t.real + t.imag * t.imag)
 
 
-def small_signal(batch: DesignBatch, omega_guess: np.ndarray | None = None, span: float = 1.3) -> SmallSignal:
+def small_signal(batch: DesignBatch, omega_guess: np.ndarray | None = None, span: float = 1.3,
+                 near: float | None = None) -> SmallSignal:
     """DC point, phase-zero frequency and start-up margin only (no steady state, no poles).
 
     With ``omega_guess`` (rad/s per row) the phase zero is searched locally by
-    :func:`local_phase_zero`; without it, by the full :func:`phase_zero`.  The
+    :func:`local_phase_zero` (``near`` as there); without it, by the full :func:`phase_zero`.  The
     numbers are those of :func:`evaluate_batch` (``freq_loop_hz``, ``margin``)
     wherever the local window holds the crossing.
     """
@@ -281,7 +302,7 @@ def small_signal(batch: DesignBatch, omega_guess: np.ndarray | None = None, span
     if omega_guess is None:
         w, m = phase_zero(mat, hy.gm_s, 2 * np.pi * hand.freq_ideal_hz)
     else:
-        w, m = local_phase_zero(mat, hy.gm_s, np.asarray(omega_guess, dtype=float), span=span)
+        w, m = local_phase_zero(mat, hy.gm_s, np.asarray(omega_guess, dtype=float), span=span, near=near)
     return SmallSignal(w / (2 * np.pi), m, dc, hy, hand, hdc)
 
 

@@ -38,6 +38,22 @@ def test_local_search_lands_on_the_full_scans_phase_zero(topology):
     np.testing.assert_allclose(local.margin[ok], full.margin[ok], rtol=MARGIN_RTOL)
 
 
+@pytest.mark.parametrize("topology", sorted(BASE))
+def test_near_guess_lands_on_the_same_phase_zero_inside_and_outside_its_window(topology):
+    """With ``near``, the 3-point bracket within the factor and the fallback to the full local
+    grid (guesses 5-20 % off, outside ``near`` = 1.03) both give evaluate_batch's answer."""
+    batch = _batch(topology, seed=5)
+    full = evaluate_batch(batch, large_signal=False)
+    rng = np.random.default_rng(2)
+    off = np.where(np.arange(batch.n) % 2 == 0, rng.uniform(0.99, 1.01, batch.n),
+                   rng.choice([1 / 1.2, 1 / 1.05, 1.05, 1.2], batch.n))
+    local = small_signal(batch, omega_guess=2 * np.pi * full.freq_loop_hz * off, near=1.03)
+    ok = np.isfinite(full.freq_loop_hz)
+    assert ok[::2].sum() >= batch.n // 4 and ok[1::2].sum() >= batch.n // 4  # both paths are exercised
+    np.testing.assert_allclose(local.freq_loop_hz[ok], full.freq_loop_hz[ok], rtol=FREQ_RTOL)
+    np.testing.assert_allclose(local.margin[ok], full.margin[ok], rtol=MARGIN_RTOL)
+
+
 def test_pencil_solve_matches_lapack_and_marks_singular_systems():
     rng = np.random.default_rng(5)
     n, size, k = 40, 7, 6
