@@ -80,6 +80,10 @@ STALE_CHUNKS = 2
 HAND_TYPICAL = 0.7
 #: The hybrid-pi fields carried from the nominal refine to the loaded-Q check.
 HYBRID = tuple(mna.Hybrid.__dataclass_fields__)
+#: The corners and sensitivity rows of a refined design look for their phase zero
+#: within this factor of the design's nominal one first (``engine.local_phase_zero``'s
+#: ``near``; the full local grid only where it is not there).
+NEAR = 1.03
 #: Relative step for the tolerance sensitivities.
 SENS_STEP = 0.01
 #: Positions whose tolerance derates the worst-case margin.
@@ -532,7 +536,7 @@ def _worst(pool, spec: FindSpec, stats, rows: np.ndarray, omega: np.ndarray, mar
     hfe = np.concatenate([np.repeat([c[0] for c in corners], m), np.full(nv * m, npn.hfe_nominal)])
     tmp = np.concatenate([np.repeat([c[1] for c in corners], m), np.full(nv * m, spec.nominal_c)])
     brow = np.tile(rows, nc + nv)
-    ss = small_signal(_batch(pool, brow, spec, hfe, tmp, values=big), np.tile(omega, nc + nv))
+    ss = small_signal(_batch(pool, brow, spec, hfe, tmp, values=big), np.tile(omega, nc + nv), near=NEAR)
     stats["refined_rows"] += brow.size
     mm = ss.margin.reshape(nc + nv, m)
     worst = np.minimum(margin, mm[:nc].min(axis=0))
@@ -568,6 +572,9 @@ def _refine_stream(pools, spec: FindSpec, drawer: Drawer, stats) -> list[dict]:
     margin is never above the nominal), so a row is skipped once that bound exceeds the
     best score its tank already has, or the need-th best score over all tanks (it can
     then be neither its tank's best nor among the need best tanks).  Ties are kept.
+    Before the nominal figures, the same test on the cost term alone (a lower bound of
+    the score, as every weight is >= 0) drops the rows whose parts already cost too
+    much, without the engine.
     """
     if not pools:
         return []
@@ -580,12 +587,21 @@ def _refine_stream(pools, spec: FindSpec, drawer: Drawer, stats) -> list[dict]:
     pid, row = pid[order], row[order]
     parts: list[list[dict]] = [[] for _ in pools]
     best = [np.full(p["tanks"].n, np.inf) for p in pools]  # best score per tank so far
+    w_cost = spec.weights.get("cost", 0.0)
     top_before, stale = np.inf, 0
     for start in range(0, order.size, REFINE_CHUNK):
         cp, cr = pid[start:start + REFINE_CHUNK], row[start:start + REFINE_CHUNK]
         pend = []
+        low = _k_smallest(best, need)
+        cut = np.inf if low is None else float(low[-1])
         for k in np.unique(cp):
-            nom = _nominal(pools[k], spec, drawer, stats, np.sort(cr[cp == k]))
+            mine = np.sort(cr[cp == k])
+            # the cost term alone bounds the score from below: no engine for a row whose
+            # cost already puts it above its tank's best or the need-th best tank
+            mine = mine[w_cost * pools[k]["cost"][mine] <= np.minimum(best[k][pools[k]["it"][mine]], cut)]
+            if mine.size == 0:
+                continue
+            nom = _nominal(pools[k], spec, drawer, stats, mine)
             lb = score(spec, nom["err"], nom["margin"], pools[k]["cost"][nom["rows"]])
             pend.append([int(k), nom, lb, np.ones(lb.size, dtype=bool)])
         take = 1

@@ -20,6 +20,9 @@ from picker.circuit.engine import evaluate_batch, small_signal
 
 #: Tolerance assumed for a position whose part carries none (a bound, common practice).
 UNKNOWN_TOL = 0.10
+#: A sample's phase zero is looked for within this factor of its guess first
+#: (``engine.local_phase_zero``'s ``near``; the full local grid where it is not there).
+NEAR = 1.03
 
 
 def samples(design: Design, n: int, temps_c: tuple[float, ...], seed: int) -> DesignBatch:
@@ -57,7 +60,7 @@ def run(design: Design, n: int, temps_c, seed: int, nominal=None):
     b = samples(design, n, temps_c, seed)
     hand = b.topology.hand(b.values, np.ones(b.n), np.ones(b.n))
     guess = 2 * np.pi * f_loop * hand.freq_ideal_hz / f_ideal0
-    ss = small_signal(b, guess)
+    ss = small_signal(b, guess, near=NEAR)
     return ss.freq_loop_hz * ratio, ss.margin
 
 
