@@ -114,6 +114,10 @@ def complete_values(topology: Topology, given: Mapping[str, float]) -> tuple[dic
     return values, tuple(defaulted)
 
 
+#: DesignBatch's per-row arrays besides the position maps.
+_ROW_FIELDS = ("hfe", "vbe_v", "ft_hz", "cob_f", "vaf_v", "vcc_v", "temp_c", "stray_f")
+
+
 @dataclass(frozen=True)
 class DesignBatch:
     """Designs of one topology as arrays with a leading batch axis (length ``n``).
@@ -177,8 +181,23 @@ class DesignBatch:
             self,
             values={k: sub(v) for k, v in self.values.items()},
             dcr_ohm={k: sub(v) for k, v in self.dcr_ohm.items()},
-            **{f: sub(getattr(self, f)) for f in
-               ("hfe", "vbe_v", "ft_hz", "cob_f", "vaf_v", "vcc_v", "temp_c", "stray_f")},
+            **{f: sub(getattr(self, f)) for f in _ROW_FIELDS},
+        )
+
+    @classmethod
+    def concat(cls, batches: list["DesignBatch"]) -> "DesignBatch":
+        """Batches of one topology and the same positions, one after another."""
+        first = batches[0]
+        if len(batches) == 1:
+            return first
+        if any(b.topology.name != first.topology.name or set(b.values) != set(first.values) for b in batches):
+            raise ValueError("concat: batches differ in topology or positions")
+        cat = lambda f: np.concatenate([np.asarray(getattr(b, f)) for b in batches])  # noqa: E731
+        return replace(
+            first,
+            values={k: np.concatenate([b.values[k] for b in batches]) for k in first.values},
+            dcr_ohm={k: np.concatenate([b.dcr_ohm[k] for b in batches]) for k in first.dcr_ohm},
+            **{f: cat(f) for f in _ROW_FIELDS},
         )
 
     def with_(self, **fields) -> "DesignBatch":

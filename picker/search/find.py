@@ -489,20 +489,47 @@ def _nominal(pool, spec: FindSpec, drawer: Drawer, stats, rows: np.ndarray | Non
     """The engine's phase-zero frequency and margin at nominal for the pool's ``rows``;
     only the rows that pass (frequency in tolerance and pulled at most FREQ_SLACK from
     the tank, margin >= min_margin, not saturated) are returned."""
-    pool["_ind_lines"] = drawer.lines["inductor"]
-    npn = pool["npn"].profile
     rows = np.arange(pool["it"].size) if rows is None else np.asarray(rows)
-    omega_s = pool["omega_s"][rows]
-    ss = small_signal(_batch(pool, rows, spec, npn.hfe_nominal, spec.nominal_c), omega_s)
-    stats["refined_rows"] += rows.size
-    f = ss.freq_loop_hz
-    err = f / spec.freq_hz - 1
-    pull = f / (omega_s / (2 * np.pi)) - 1  # from the tank's own resonance
-    ok = (np.isfinite(f) & (np.abs(err) <= spec.tol) & (np.abs(pull) <= space.FREQ_SLACK)
-          & (ss.margin >= spec.min_margin) & ~ss.dc.saturated)
-    hy = np.stack([np.asarray(getattr(ss.hybrid, k))[ok] for k in HYBRID], axis=1)
-    return {"rows": rows[ok], "freq_hz": f[ok], "err": err[ok], "margin": ss.margin[ok], "omega": 2 * np.pi * f[ok],
-            "hybrid": hy}
+    return _nominal_many([(pool, rows)], spec, drawer, stats)[0]
+
+
+def _nominal_many(jobs, spec: FindSpec, drawer: Drawer, stats) -> list[dict]:
+    """:func:`_nominal` of several (pool, rows), the engine run once per topology."""
+    prep = []
+    for pool, rows in jobs:
+        pool["_ind_lines"] = drawer.lines["inductor"]
+        prep.append(_batch(pool, rows, spec, pool["npn"].profile.hfe_nominal, spec.nominal_c))
+        stats["refined_rows"] += rows.size
+    omegas = [pool["omega_s"][rows] for pool, rows in jobs]
+    out = []
+    for (pool, rows), omega_s, (f, margin, saturated, hy) in zip(jobs, omegas, _engine_many(prep, omegas)):
+        err = f / spec.freq_hz - 1
+        pull = f / (omega_s / (2 * np.pi)) - 1  # from the tank's own resonance
+        ok = (np.isfinite(f) & (np.abs(err) <= spec.tol) & (np.abs(pull) <= space.FREQ_SLACK)
+              & (margin >= spec.min_margin) & ~saturated)
+        out.append({"rows": rows[ok], "freq_hz": f[ok], "err": err[ok], "margin": margin[ok],
+                    "omega": 2 * np.pi * f[ok], "hybrid": hy[ok]})
+    return out
+
+
+def _engine_many(batches: list[DesignBatch], guesses: list[np.ndarray], near: float | None = None) -> list[tuple]:
+    """``engine.small_signal`` of several batches, stacked into one call per topology (a
+    call costs about 2.5 ms besides some 20 us per row, and the stream's batches are a
+    few hundred rows); per batch (freq_hz, margin, saturated, hybrid (n, len(HYBRID)))."""
+    out: list[tuple | None] = [None] * len(batches)
+    groups: dict[str, list[int]] = {}
+    for i, b in enumerate(batches):
+        groups.setdefault(b.topology.name, []).append(i)
+    for idx in groups.values():
+        ss = small_signal(DesignBatch.concat([batches[i] for i in idx]), np.concatenate([guesses[i] for i in idx]),
+                          near=near)
+        n = ss.margin.shape[0]
+        hy = np.stack([np.broadcast_to(getattr(ss.hybrid, k), (n,)) for k in HYBRID], axis=1)
+        cuts = np.cumsum([batches[i].n for i in idx])[:-1]
+        pieces = (np.split(a, cuts) for a in (ss.freq_loop_hz, ss.margin, np.asarray(ss.dc.saturated), hy))
+        for i, got in zip(idx, zip(*pieces)):
+            out[i] = got
+    return out
 
 
 def _loaded_q(pool, spec: FindSpec, rows: np.ndarray, nom: dict) -> np.ndarray:
@@ -515,8 +542,24 @@ def _loaded_q(pool, spec: FindSpec, rows: np.ndarray, nom: dict) -> np.ndarray:
 def _worst(pool, spec: FindSpec, stats, rows: np.ndarray, omega: np.ndarray, margin: np.ndarray) -> np.ndarray:
     """Worst-case margin of the pool's ``rows`` (nominal figures ``omega``, ``margin``):
     the hFE min/typ/max corners at each temperature, then the first-order tolerance derating."""
-    if rows.size == 0:
-        return np.zeros(0)
+    return _worst_many([(pool, rows, omega, margin)], spec, stats)[0]
+
+
+def _worst_many(jobs, spec: FindSpec, stats) -> list[np.ndarray]:
+    """:func:`_worst` of several (pool, rows, omega, margin), the engine run once per topology."""
+    out: list[np.ndarray | None] = [np.zeros(0) if rows.size == 0 else None for _, rows, _, _ in jobs]
+    live = [i for i, w in enumerate(out) if w is None]
+    prep = [_worst_batch(*jobs[i][:3], spec) for i in live]
+    for i, (b, _, ctx), got in zip(live, prep, _engine_many([p[0] for p in prep], [p[1] for p in prep], NEAR)):
+        stats["refined_rows"] += b.n
+        out[i] = _worst_of(ctx, jobs[i][3], got[1])
+    return out
+
+
+def _worst_batch(pool, rows: np.ndarray, omega: np.ndarray, spec: FindSpec):
+    """The engine batch of :func:`_worst` (the corners with the values as they are, then one
+    block per varied position with that value raised by SENS_STEP at nominal hFE and
+    temperature), its frequency guesses, and what :func:`_worst_of` needs."""
     npn = pool["npn"].profile
     # hFE min/typ/max at each temperature (typ at nominal is the row above)
     corners = [(h, t) for t in dict.fromkeys((spec.nominal_c,) + tuple(spec.temps_c))
@@ -527,23 +570,26 @@ def _worst(pool, spec: FindSpec, stats, rows: np.ndarray, omega: np.ndarray, mar
     tols = _tols(pool, rows)
     topo = get_topology(pool["topology"])
     varied = [r for r in vals if r in tols and topo.position(r).kind in VARIED_KINDS and np.any(vals[r] > 0)]
-    # one engine batch: the corners (values as they are), then one block per varied
-    # position with that value raised by SENS_STEP (nominal hFE and temperature)
     nc, nv = len(corners), len(varied)
     big = {r: np.tile(v, nc + nv) for r, v in vals.items()}
     for k, r in enumerate(varied):
         big[r][(nc + k) * m:(nc + k + 1) * m] *= 1 + SENS_STEP
     hfe = np.concatenate([np.repeat([c[0] for c in corners], m), np.full(nv * m, npn.hfe_nominal)])
     tmp = np.concatenate([np.repeat([c[1] for c in corners], m), np.full(nv * m, spec.nominal_c)])
-    brow = np.tile(rows, nc + nv)
-    ss = small_signal(_batch(pool, brow, spec, hfe, tmp, values=big), np.tile(omega, nc + nv), near=NEAR)
-    stats["refined_rows"] += brow.size
-    mm = ss.margin.reshape(nc + nv, m)
+    batch = _batch(pool, np.tile(rows, nc + nv), spec, hfe, tmp, values=big)
+    return batch, np.tile(omega, nc + nv), (nc, [tols[r] for r in varied])
+
+
+def _worst_of(ctx, margin: np.ndarray, corner_margin: np.ndarray) -> np.ndarray:
+    """The worst-case margin from the nominal ``margin`` and the engine's margins of the
+    :func:`_worst_batch` rows: the worst corner, derated to first order by the tolerances."""
+    nc, tol_varied = ctx
+    mm = corner_margin.reshape(-1, margin.size)
     worst = np.minimum(margin, mm[:nc].min(axis=0))
     # first-order tolerance derating: ln M_worst = ln M_corner - sum |dlnM/dlnx| ln(1+tol)
     with np.errstate(divide="ignore", invalid="ignore"):
         sens = (np.log(np.maximum(mm[nc:], 1e-300)) - np.log(margin)) / np.log1p(SENS_STEP)
-    derate = sum(np.abs(np.nan_to_num(sens[k], nan=0.0)) * np.log1p(tols[r]) for k, r in enumerate(varied))
+    derate = sum(np.abs(np.nan_to_num(sens[k], nan=0.0)) * np.log1p(t) for k, t in enumerate(tol_varied))
     return worst * np.exp(-derate)
 
 
@@ -594,28 +640,32 @@ def _refine_stream(pools, spec: FindSpec, drawer: Drawer, stats) -> list[dict]:
         pend = []
         low = _k_smallest(best, need)
         cut = np.inf if low is None else float(low[-1])
+        jobs = []
         for k in np.unique(cp):
             mine = np.sort(cr[cp == k])
             # the cost term alone bounds the score from below: no engine for a row whose
             # cost already puts it above its tank's best or the need-th best tank
             mine = mine[w_cost * pools[k]["cost"][mine] <= np.minimum(best[k][pools[k]["it"][mine]], cut)]
-            if mine.size == 0:
-                continue
-            nom = _nominal(pools[k], spec, drawer, stats, mine)
+            if mine.size:
+                jobs.append((int(k), mine))
+        for (k, _), nom in zip(jobs, _nominal_many([(pools[k], m) for k, m in jobs], spec, drawer, stats)):
             lb = score(spec, nom["err"], nom["margin"], pools[k]["cost"][nom["rows"]])
-            pend.append([int(k), nom, lb, np.ones(lb.size, dtype=bool)])
+            pend.append([k, nom, lb, np.ones(lb.size, dtype=bool)])
         take = 1
         while any(p[3].any() for p in pend):
             low = _k_smallest(best, need)
             cut = np.inf if low is None else float(low[-1])
+            picks = []
             for k, nom, lb, alive in pend:
                 tank = pools[k]["it"][nom["rows"]]
                 alive &= lb <= np.minimum(best[k][tank], cut)
                 pick = _lowest_per_group(np.flatnonzero(alive), lb, tank, take)
-                if pick.size == 0:
-                    continue
-                alive[pick] = False
-                worst = _worst(pools[k], spec, stats, nom["rows"][pick], nom["omega"][pick], nom["margin"][pick])
+                if pick.size:
+                    alive[pick] = False
+                    picks.append((k, nom, pick, tank))
+            worsts = _worst_many([(pools[k], nom["rows"][pick], nom["omega"][pick], nom["margin"][pick])
+                                  for k, nom, pick, _ in picks], spec, stats)
+            for (k, nom, pick, tank), worst in zip(picks, worsts):
                 got = {key: a[pick] for key, a in nom.items()}
                 got["worst"] = worst
                 got["loaded_q"] = _loaded_q(pools[k], spec, got["rows"], got)

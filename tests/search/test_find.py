@@ -108,3 +108,26 @@ def test_combine_makes_an_odd_value_from_two_on_hand():
         assert abs(ev.freq_hz / f - 1) <= 0.003
     best_plain = min((abs(c.freq_error) for c in plain.candidates), default=np.inf)
     assert min(abs(c.freq_error) for c in pairs) < best_plain
+
+
+def test_stacked_engine_calls_equal_separate_ones():
+    """The refine stream stacks batches into one engine call per topology; per batch the
+    figures equal those of its own call (two topologies, two transistors, interleaved)."""
+    from tests.circuit.test_phase_zero import _batch as mixed
+    from picker.circuit.engine import evaluate_batch, small_signal
+    from picker.search.find import _engine_many
+
+    b1, b2, b3 = mixed("colpitts-ce", n=12, seed=1), mixed("hartley", n=9, seed=2), mixed("colpitts-ce", n=7, seed=4)
+    b3 = b3.with_(hfe=b3.hfe * 2.5, ft_hz=b3.ft_hz * 0.4)  # another transistor in the same topology
+    batches = [b1, b2, b3]
+    guesses = [2 * np.pi * evaluate_batch(b, large_signal=False).freq_loop_hz * 1.01 for b in batches]
+    guesses = [np.where(np.isfinite(g), g, 2 * np.pi * 400e3) for g in guesses]
+    got = _engine_many(batches, guesses, near=1.03)
+    for b, g, (f, m, sat, hy) in zip(batches, guesses, got):
+        alone = small_signal(b, g, near=1.03)
+        assert f.shape == (b.n,) and hy.shape[0] == b.n
+        np.testing.assert_allclose(f, alone.freq_loop_hz, rtol=1e-9, equal_nan=True)
+        np.testing.assert_allclose(m, alone.margin, rtol=1e-9)
+        np.testing.assert_array_equal(sat, alone.dc.saturated)
+        np.testing.assert_allclose(hy[:, 0], alone.hybrid.gm_s, rtol=1e-12)
+    assert np.isfinite(got[0][0]).sum() >= 6 and np.isfinite(got[1][0]).sum() >= 4  # real crossings compared
