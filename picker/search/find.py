@@ -409,11 +409,24 @@ def _search_one(topology, npn: Npn, drawer: Drawer, spec: FindSpec, stats, neare
     if topology in ("colpitts-ce", "clapp"):
         err_p = _loaded_error(topology, offers, tk, it, ib, roff, bs, gm, re1, r_in, drawer, spec, stray, caps)
     sc = score(spec, err_p, HAND_TYPICAL * hand[pass_], tk.cost[it] + bcost[ib] + npn.cost)
-    keep = np.argsort(sc, kind="stable")[:REFINE_MAX]
+    keep = _smallest(sc, REFINE_MAX)
     it, ib = it[keep], ib[keep]
     return dict(topology=topology, npn=npn, offers=offers, roff=roff, coff=coff, tanks=tk, biases=bs,
                 cidx=cidx, it=it, ib=ib, screen=sc[keep], cost=tk.cost[it] + bcost[ib] + npn.cost,
                 parts=tk.parts[it] + bparts[ib] + 1, omega_s=2 * np.pi * tk.freq_hz[it])
+
+
+def _smallest(x: np.ndarray, k: int) -> np.ndarray:
+    """Indices of the ``k`` smallest of ``x`` in the order of a stable sort (ties by
+    index): ``np.argsort(x, kind="stable")[:k]``, with a partition first so that only
+    the few kept are sorted."""
+    if x.size <= k:
+        return np.argsort(x, kind="stable")
+    thr = np.partition(x, k - 1)[k - 1]
+    if np.isnan(thr):
+        return np.argsort(x, kind="stable")[:k]
+    cand = np.flatnonzero(x <= thr)
+    return cand[np.argsort(x[cand], kind="stable")][:k]
 
 
 def _loaded_error(topology, offers, tk, it, ib, roff, bs, gm, re1, r_in, drawer, spec, stray, caps):

@@ -3,6 +3,8 @@
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from picker.circuit.design import Design, complete_values
 from picker.circuit.device import NpnProfile
@@ -131,3 +133,15 @@ def test_stacked_engine_calls_equal_separate_ones():
         np.testing.assert_array_equal(sat, alone.dc.saturated)
         np.testing.assert_allclose(hy[:, 0], alone.hybrid.gm_s, rtol=1e-12)
     assert np.isfinite(got[0][0]).sum() >= 6 and np.isfinite(got[1][0]).sum() >= 4  # real crossings compared
+
+
+@settings(max_examples=80, deadline=None)
+@given(st.lists(st.sampled_from([0.0, 0.5, 1.0, 1.5, 2.0, np.nan, np.inf]) | st.floats(-5, 5), max_size=60),
+       st.integers(1, 70))
+def test_smallest_is_a_stable_argsort_cut(xs, k):
+    """find keeps the pairs of the best screen scores with ties by index: the partial
+    selection equals numpy's stable argsort cut at k (many ties, NaN, inf)."""
+    from picker.search.find import _smallest
+
+    x = np.array(xs, dtype=float)
+    assert _smallest(x, k).tolist() == np.argsort(x, kind="stable")[:k].tolist()
