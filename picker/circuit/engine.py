@@ -163,7 +163,7 @@ class SmallSignal:
 
 
 def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, xtol=1e-12, max_steps=60,
-                     near: float | None = None):
+                     near: float | None = None, within: tuple[np.ndarray, np.ndarray] | None = None):
     """Phase-zero frequency near a good guess, without the eigenvalue scan.
 
     A log grid of ``points`` over ``omega_guess`` / ``span`` .. * ``span``
@@ -179,6 +179,11 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
     of the crossing (a corner or a sample of a design whose own crossing it is):
     a 3-point grid over guess / near .. * near brackets it first, and only the rows
     without a crossing of positive Re T there get the full grid.
+
+    With ``within`` (lowest, highest acceptable omega per row), a row whose bracket
+    lies wholly outside that window stops there and is reported as not found: its
+    crossing (always inside its bracket) could not be accepted anyway.  Rows whose
+    crossing is inside get the same answer as without ``within``.
     Returns (omega, margin) like :func:`phase_zero`.
     """
     n = gm_s.shape[0]
@@ -201,8 +206,16 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
     last = np.zeros(n, dtype=np.int8)  # end the previous step replaced: 1 = a, 2 = b, 0 = none
     ref_width = np.abs(b - a)
     since = np.zeros(n, dtype=np.int8)  # steps since the bracket last halved
-    act = np.flatnonzero(found & (fa != 0) & (fb != 0))
+    outside = np.zeros(n, dtype=bool)
+    if within is not None:  # log window, widened by rounding's worth so that no edge case is lost
+        log_lo, log_hi = np.log(within[0]) - 1e-9, np.log(within[1]) + 1e-9
+        outside = found & ((np.maximum(a, b) < log_lo) | (np.minimum(a, b) > log_hi))
+    act = np.flatnonzero(found & ~outside & (fa != 0) & (fb != 0))
     for _ in range(max_steps):
+        if within is not None and act.size:
+            out = (np.maximum(a[act], b[act]) < log_lo[act]) | (np.minimum(a[act], b[act]) > log_hi[act])
+            outside[act[out]] = True
+            act = act[~out]
         if act.size == 0:
             break
         a_, b_, fa_, fb_ = a[act], b[act], fa[act], fb[act]
@@ -249,7 +262,7 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
         pick_a = np.abs(_phase_fn(ta)) < np.abs(_phase_fn(tb))
     w = np.exp(np.where(pick_a, a, b))
     m = np.where(pick_a, ta.real, tb.real)
-    found &= m > 0
+    found &= (m > 0) & ~outside
     return np.where(found, w, np.nan), np.where(found, m, 0.0)
 
 
@@ -284,11 +297,11 @@ def _phase_fn(t: np.ndarray) -> np.ndarray:
 
 
 def small_signal(batch: DesignBatch, omega_guess: np.ndarray | None = None, span: float = 1.3,
-                 near: float | None = None) -> SmallSignal:
+                 near: float | None = None, within=None) -> SmallSignal:
     """DC point, phase-zero frequency and start-up margin only (no steady state, no poles).
 
     With ``omega_guess`` (rad/s per row) the phase zero is searched locally by
-    :func:`local_phase_zero` (``near`` as there); without it, by the full :func:`phase_zero`.  The
+    :func:`local_phase_zero` (``near``, ``within`` as there); without it, by the full :func:`phase_zero`.  The
     numbers are those of :func:`evaluate_batch` (``freq_loop_hz``, ``margin``)
     wherever the local window holds the crossing.
     """
@@ -302,7 +315,8 @@ def small_signal(batch: DesignBatch, omega_guess: np.ndarray | None = None, span
     if omega_guess is None:
         w, m = phase_zero(mat, hy.gm_s, 2 * np.pi * hand.freq_ideal_hz)
     else:
-        w, m = local_phase_zero(mat, hy.gm_s, np.asarray(omega_guess, dtype=float), span=span, near=near)
+        w, m = local_phase_zero(mat, hy.gm_s, np.asarray(omega_guess, dtype=float), span=span, near=near,
+                                within=within)
     return SmallSignal(w / (2 * np.pi), m, dc, hy, hand, hdc)
 
 

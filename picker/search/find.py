@@ -514,8 +514,13 @@ def _nominal_many(jobs, spec: FindSpec, drawer: Drawer, stats) -> list[dict]:
         prep.append(_batch(pool, rows, spec, pool["npn"].profile.hfe_nominal, spec.nominal_c))
         stats["refined_rows"] += rows.size
     omegas = [pool["omega_s"][rows] for pool, rows in jobs]
+    # the frequencies the filter below accepts: the engine drops a row once its phase-zero
+    # bracket lies outside them (most rows of a small drawer, whose tanks are sparse)
+    w_t = 2 * np.pi * spec.freq_hz
+    windows = [(np.maximum(w_t * (1 - spec.tol), w * (1 - space.FREQ_SLACK)),
+                np.minimum(w_t * (1 + spec.tol), w * (1 + space.FREQ_SLACK))) for w in omegas]
     out = []
-    for (pool, rows), omega_s, (f, margin, saturated, hy) in zip(jobs, omegas, _engine_many(prep, omegas)):
+    for (pool, rows), omega_s, (f, margin, saturated, hy) in zip(jobs, omegas, _engine_many(prep, omegas, None, windows)):
         err = f / spec.freq_hz - 1
         pull = f / (omega_s / (2 * np.pi)) - 1  # from the tank's own resonance
         ok = (np.isfinite(f) & (np.abs(err) <= spec.tol) & (np.abs(pull) <= space.FREQ_SLACK)
@@ -525,17 +530,20 @@ def _nominal_many(jobs, spec: FindSpec, drawer: Drawer, stats) -> list[dict]:
     return out
 
 
-def _engine_many(batches: list[DesignBatch], guesses: list[np.ndarray], near: float | None = None) -> list[tuple]:
+def _engine_many(batches: list[DesignBatch], guesses: list[np.ndarray], near: float | None = None,
+                 windows: list[tuple] | None = None) -> list[tuple]:
     """``engine.small_signal`` of several batches, stacked into one call per topology (a
     call costs about 2.5 ms besides some 20 us per row, and the stream's batches are a
-    few hundred rows); per batch (freq_hz, margin, saturated, hybrid (n, len(HYBRID)))."""
+    few hundred rows); per batch (freq_hz, margin, saturated, hybrid (n, len(HYBRID))).
+    ``windows``: per batch the (low, high) omega arrays of ``small_signal``'s ``within``."""
     out: list[tuple | None] = [None] * len(batches)
     groups: dict[str, list[int]] = {}
     for i, b in enumerate(batches):
         groups.setdefault(b.topology.name, []).append(i)
     for idx in groups.values():
+        within = None if windows is None else tuple(np.concatenate([windows[i][k] for i in idx]) for k in (0, 1))
         ss = small_signal(DesignBatch.concat([batches[i] for i in idx]), np.concatenate([guesses[i] for i in idx]),
-                          near=near)
+                          near=near, within=within)
         n = ss.margin.shape[0]
         hy = np.stack([np.broadcast_to(getattr(ss.hybrid, k), (n,)) for k in HYBRID], axis=1)
         cuts = np.cumsum([batches[i].n for i in idx])[:-1]

@@ -54,6 +54,24 @@ def test_near_guess_lands_on_the_same_phase_zero_inside_and_outside_its_window(t
     np.testing.assert_allclose(local.margin[ok], full.margin[ok], rtol=MARGIN_RTOL)
 
 
+def test_window_drops_only_rows_whose_crossing_it_excludes():
+    """With ``within``, rows whose crossing lies in the window keep the answer they get
+    without it; the others are reported as not found (NaN, margin 0)."""
+    batch = _batch("colpitts-ce", seed=7)
+    guess = 2 * np.pi * evaluate_batch(batch, large_signal=False).freq_loop_hz
+    guess = np.where(np.isfinite(guess), guess, 2 * np.pi * 50e3) * 1.02
+    free = small_signal(batch, omega_guess=guess)
+    w_mid = 2 * np.pi * np.nanmedian(free.freq_loop_hz)
+    lo, hi = np.full(batch.n, w_mid / 1.15), np.full(batch.n, w_mid * 1.15)
+    boxed = small_signal(batch, omega_guess=guess, within=(lo, hi))
+    w = 2 * np.pi * free.freq_loop_hz
+    inside = np.isfinite(w) & (w >= lo) & (w <= hi)
+    assert 5 <= inside.sum() <= batch.n - 5  # both kinds of row are present
+    np.testing.assert_array_equal(boxed.freq_loop_hz[inside], free.freq_loop_hz[inside])
+    np.testing.assert_array_equal(boxed.margin[inside], free.margin[inside])
+    assert np.isnan(boxed.freq_loop_hz[~inside]).all() and (boxed.margin[~inside] == 0).all()
+
+
 def test_pencil_solve_matches_lapack_and_marks_singular_systems():
     rng = np.random.default_rng(5)
     n, size, k = 40, 7, 6
