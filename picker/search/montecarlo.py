@@ -47,10 +47,12 @@ def samples(design: Design, n: int, temps_c: tuple[float, ...], seed: int) -> De
     return b.with_(values=values, hfe=hfe, temp_c=temp)
 
 
-def run(design: Design, n: int, temps_c, seed: int, nominal=None):
+def run(design: Design, n: int, temps_c, seed: int, nominal=None, band_hz: tuple[float, float] | None = None):
     """(freq_hz, margin) arrays of ``n`` samples.  ``nominal``: the design's own figures
     (anything with ``freq_loop_hz``, ``freq_hz`` and ``freq_ideal_hz``, such as the
-    Evaluation the full check made) when already known; else they are computed."""
+    Evaluation the full check made) when already known; else they are computed.
+    ``band_hz``: only frequencies in (low, high) matter to the caller; a sample found
+    to be outside is reported as NaN (margin 0) without finishing its search."""
     if nominal is None:
         res = evaluate_batch(DesignBatch.from_designs([design]))
         f_loop, f_run, f_ideal0 = (float(res.freq_loop_hz[0]), float(res.freq_hz[0]), float(res.freq_ideal_hz[0]))
@@ -60,7 +62,10 @@ def run(design: Design, n: int, temps_c, seed: int, nominal=None):
     b = samples(design, n, temps_c, seed)
     hand = b.topology.hand(b.values, np.ones(b.n), np.ones(b.n))
     guess = 2 * np.pi * f_loop * hand.freq_ideal_hz / f_ideal0
-    ss = small_signal(b, guess, near=NEAR)
+    within = None
+    if band_hz is not None:  # the engine's loop frequency is the running one / ratio
+        within = tuple(np.full(b.n, 2 * np.pi * f / ratio) for f in band_hz)
+    ss = small_signal(b, guess, near=NEAR, within=within)
     return ss.freq_loop_hz * ratio, ss.margin
 
 
@@ -69,6 +74,7 @@ def yield_of(design: Design, spec, nominal=None) -> float | None:
     for :func:`run`."""
     if spec.mc <= 0:
         return None
-    f, m = run(design, spec.mc, tuple(spec.temps_c), spec.seed, nominal)
+    band = (spec.freq_hz * (1 - spec.tol), spec.freq_hz * (1 + spec.tol))
+    f, m = run(design, spec.mc, tuple(spec.temps_c), spec.seed, nominal, band_hz=band)
     ok = np.isfinite(f) & (np.abs(f / spec.freq_hz - 1) <= spec.tol) & (m >= 1.0)
     return float(np.mean(ok))

@@ -145,3 +145,22 @@ def test_smallest_is_a_stable_argsort_cut(xs, k):
 
     x = np.array(xs, dtype=float)
     assert _smallest(x, k).tolist() == np.argsort(x, kind="stable")[:k].tolist()
+
+
+def test_yield_band_stops_only_samples_outside_it(found):
+    """montecarlo.run with ``band_hz`` (what yield_of passes) gives the unbanded figures for
+    every sample inside the band, NaN outside; so the yield is the one counted from the
+    full run.  The band is set so that both kinds of sample occur."""
+    from picker.search import montecarlo
+
+    spec, res = found
+    design = res.candidates[0].design
+    f_all, m_all = montecarlo.run(design, 400, TEMPS, 5)
+    lo, hi = np.nanpercentile(f_all, [20, 70])
+    f_b, m_b = montecarlo.run(design, 400, TEMPS, 5, band_hz=(lo, hi))
+    inside = np.isfinite(f_all) & (f_all > lo * (1 + 1e-6)) & (f_all < hi * (1 - 1e-6))
+    assert 100 <= inside.sum() <= 300
+    np.testing.assert_array_equal(f_b[inside], f_all[inside])
+    np.testing.assert_array_equal(m_b[inside], m_all[inside])
+    out = np.isfinite(f_all) & ((f_all < lo * (1 - 1e-6)) | (f_all > hi * (1 + 1e-6)))
+    assert (np.isnan(f_b[out]) | (f_b[out] < lo) | (f_b[out] > hi)).all()
