@@ -96,10 +96,11 @@ def hybrid_at(dc: DcPoint, model: NpnModel, temp_c, scale=1.0) -> mna.Hybrid:
 
 
 def loop_gain(mat: mna.Matrices, gm_s: np.ndarray, omega: np.ndarray,
-              rows: np.ndarray | None = None) -> np.ndarray:
+              rows: np.ndarray | None = None, pencil: bool = False) -> np.ndarray:
     """Return ratio T(j omega) with respect to gm, shape of ``omega`` (n, K); with
-    ``rows`` (indices into the batch) only those designs, ``omega`` then (len(rows), K)."""
-    v = mna.responses(mat, omega, rows=rows)
+    ``rows`` (indices into the batch) only those designs, ``omega`` then (len(rows), K).
+    ``pencil``: as :func:`mna.responses`."""
+    v = mna.responses(mat, omega, rows=rows, pencil=pencil)
     gm = gm_s if rows is None else gm_s[rows]
     return gm[:, None] * (v[..., mat.index["B"]] - v[..., mat.index["E"]])
 
@@ -187,7 +188,12 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
     Returns (omega, margin) like :func:`phase_zero`.
     """
     n = gm_s.shape[0]
-    if near is None:
+    outside = np.zeros(n, dtype=bool)
+    if within is not None:  # the window widened by rounding's worth, so that no edge case is lost
+        lo_w, hi_w = within[0] * np.exp(-1e-9), within[1] * np.exp(1e-9)
+    if near is None and within is not None:
+        w_a, w_b, ta, tb, found, outside = _bracket_within(mat, gm_s, omega_guess, span, points, lo_w, hi_w)
+    elif near is None:
         w_a, w_b, ta, tb, found = _bracket(mat, gm_s, omega_guess, span, points)
     else:
         w_a, w_b, ta, tb, found = _bracket(mat, gm_s, omega_guess, near, 3)
@@ -206,10 +212,9 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
     last = np.zeros(n, dtype=np.int8)  # end the previous step replaced: 1 = a, 2 = b, 0 = none
     ref_width = np.abs(b - a)
     since = np.zeros(n, dtype=np.int8)  # steps since the bracket last halved
-    outside = np.zeros(n, dtype=bool)
-    if within is not None:  # log window, widened by rounding's worth so that no edge case is lost
-        log_lo, log_hi = np.log(within[0]) - 1e-9, np.log(within[1]) + 1e-9
-        outside = found & ((np.maximum(a, b) < log_lo) | (np.minimum(a, b) > log_hi))
+    if within is not None:
+        log_lo, log_hi = np.log(lo_w), np.log(hi_w)
+        outside |= found & ((np.maximum(a, b) < log_lo) | (np.minimum(a, b) > log_hi))
     act = np.flatnonzero(found & ~outside & (fa != 0) & (fb != 0))
     for _ in range(max_steps):
         if within is not None and act.size:
@@ -275,6 +280,39 @@ def _bracket(mat: mna.Matrices, gm_s, omega_guess, span: float, points: int, row
     j, found = _best_crossing(t)
     k = np.arange(j.size)
     return grid[k, j], grid[k, j + 1], t[k, j], t[k, j + 1], found
+
+
+def _bracket_within(mat: mna.Matrices, gm_s, omega_guess, span: float, points: int, lo, hi):
+    """:func:`_bracket` for rows that accept only omega in [``lo``, ``hi``], in two steps:
+    first the grid points of the intervals that meet some row's window; a row with no
+    sign change of Im T in an interval meeting its own window is done (its best crossing,
+    if any, lies in an interval outside the window, and its zero in that interval), the
+    others get the rest of the grid and the same bracket as :func:`_bracket` (the pencil
+    solve is used for both parts, so the bits are those of the whole grid).  Returns
+    :func:`_bracket`'s tuple and which rows were settled as outside."""
+    grid = omega_guess[:, None] * np.geomspace(1 / span, span, points)[None, :]
+    n = grid.shape[0]
+    meets = (grid[:, 1:] >= lo[:, None]) & (grid[:, :-1] <= hi[:, None])  # (n, points - 1)
+    used = np.flatnonzero(meets.any(axis=0))
+    if used.size == 0:
+        out = np.full(n, np.nan)
+        return out, out, out.astype(complex), out.astype(complex), np.zeros(n, dtype=bool), np.ones(n, dtype=bool)
+    c0, c1 = int(used[0]), int(used[-1]) + 1  # first and last grid point of those intervals
+    t = np.full((n, points), np.nan, dtype=complex)
+    t[:, c0:c1 + 1] = loop_gain(mat, gm_s, grid[:, c0:c1 + 1], pencil=True)
+    im = t.imag[:, c0:c1 + 1]
+    cross = np.signbit(im[:, :-1]) != np.signbit(im[:, 1:])
+    keep = np.flatnonzero((cross & meets[:, c0:c1]).any(axis=1))
+    other = np.r_[0:c0, c1 + 1:points]
+    if keep.size and other.size:
+        t[np.ix_(keep, other)] = loop_gain(mat, gm_s, grid[np.ix_(keep, other)], rows=keep, pencil=True)
+    j, found = np.zeros(n, dtype=int), np.zeros(n, dtype=bool)
+    if keep.size:
+        j[keep], found[keep] = _best_crossing(t[keep])
+    settled = np.ones(n, dtype=bool)
+    settled[keep] = False
+    k = np.arange(n)
+    return grid[k, j], grid[k, j + 1], t[k, j], t[k, j + 1], found, settled
 
 
 def _best_crossing(t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

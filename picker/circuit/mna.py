@@ -134,7 +134,7 @@ def natural_frequencies(mat: Matrices, gm_s: np.ndarray) -> np.ndarray:
 
 
 def responses(mat: Matrices, omega: np.ndarray, rows: np.ndarray | None = None,
-              chunk: int = 512) -> np.ndarray:
+              chunk: int = 512, pencil: bool = False) -> np.ndarray:
     """Node voltages for a unit test current replacing gm (drawn from C, into E).
 
     Parameters
@@ -145,6 +145,9 @@ def responses(mat: Matrices, omega: np.ndarray, rows: np.ndarray | None = None,
         Designs (indices into the batch) to solve, ``n = len(rows)``; default all.
     chunk : int
         Systems per batched LAPACK solve (one frequency per design).
+    pencil : bool
+        Use :func:`solve_pencil` whatever the number of frequencies (it is chosen
+        from PENCIL_MIN_K on), so that a grid solved in parts gives the same bits.
 
     Returns
     -------
@@ -157,7 +160,7 @@ def responses(mat: Matrices, omega: np.ndarray, rows: np.ndarray | None = None,
     rhs[mat.index["E"]] += 1.0
     rhs[mat.index["C"]] -= 1.0
     out = np.empty((n, k, size), dtype=complex)
-    if k >= PENCIL_MIN_K:  # several frequencies per design: the elimination vectorised over the batch
+    if pencil or k >= PENCIL_MIN_K:  # several frequencies per design: the elimination vectorised over the batch
         step = max(1, PENCIL_CHUNK // k)
         for s in range(0, n, step):
             sl = slice(s, s + step)

@@ -54,19 +54,24 @@ def test_near_guess_lands_on_the_same_phase_zero_inside_and_outside_its_window(t
     np.testing.assert_allclose(local.margin[ok], full.margin[ok], rtol=MARGIN_RTOL)
 
 
-def test_window_drops_only_rows_whose_crossing_it_excludes():
-    """With ``within``, rows whose crossing lies in the window keep the answer they get
-    without it; the others are reported as not found (NaN, margin 0)."""
+@pytest.mark.parametrize("width", [1.01, 1.15])
+def test_window_drops_only_rows_whose_crossing_it_excludes(width):
+    """With ``within``, rows whose crossing lies in the window keep, to the bit, the answer
+    they get without it; the others are reported as not found (NaN, margin 0).  Windows
+    per row, narrow (as find's nominal refine: target +-1 %) and wide, some holding the
+    crossing and some beside it, below or above."""
     batch = _batch("colpitts-ce", seed=7)
-    guess = 2 * np.pi * evaluate_batch(batch, large_signal=False).freq_loop_hz
-    guess = np.where(np.isfinite(guess), guess, 2 * np.pi * 50e3) * 1.02
+    full = evaluate_batch(batch, large_signal=False).freq_loop_hz
+    guess = 2 * np.pi * np.where(np.isfinite(full), full, 50e3) * 1.02
     free = small_signal(batch, omega_guess=guess)
-    w_mid = 2 * np.pi * np.nanmedian(free.freq_loop_hz)
-    lo, hi = np.full(batch.n, w_mid / 1.15), np.full(batch.n, w_mid * 1.15)
-    boxed = small_signal(batch, omega_guess=guess, within=(lo, hi))
     w = 2 * np.pi * free.freq_loop_hz
+    beside = width**2 * 1.04  # a window this far above or below the crossing does not hold it
+    shift = np.resize([1.0, beside, 1.0, 1 / beside, 1.0, 1.005], batch.n)
+    centre = np.where(np.isfinite(w), w, guess) * shift
+    lo, hi = centre / width, centre * width
+    boxed = small_signal(batch, omega_guess=guess, within=(lo, hi))
     inside = np.isfinite(w) & (w >= lo) & (w <= hi)
-    assert 5 <= inside.sum() <= batch.n - 5  # both kinds of row are present
+    assert 10 <= inside.sum() <= batch.n - 10  # both kinds of row are present
     np.testing.assert_array_equal(boxed.freq_loop_hz[inside], free.freq_loop_hz[inside])
     np.testing.assert_array_equal(boxed.margin[inside], free.margin[inside])
     assert np.isnan(boxed.freq_loop_hz[~inside]).all() and (boxed.margin[~inside] == 0).all()
