@@ -163,6 +163,12 @@ class SmallSignal:
         return self.margin > 1.0
 
 
+#: Factor within which a corner's or a Monte Carlo sample's phase zero is first looked
+#: for around its design's own (``local_phase_zero``'s ``near``; rows not bracketed there
+#: get the full local grid, so the factor sets only the speed).
+NEAR = 1.03
+
+
 def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, xtol=1e-12, max_steps=60,
                      near: float | None = None, within: tuple[np.ndarray, np.ndarray] | None = None):
     """Phase-zero frequency near a good guess, without the eigenvalue scan.
@@ -214,13 +220,18 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
     since = np.zeros(n, dtype=np.int8)  # steps since the bracket last halved
     if within is not None:
         log_lo, log_hi = np.log(lo_w), np.log(hi_w)
-        outside |= found & ((np.maximum(a, b) < log_lo) | (np.minimum(a, b) > log_hi))
-    act = np.flatnonzero(found & ~outside & (fa != 0) & (fb != 0))
+
+    def leave_window(act):
+        """``act`` without the rows whose bracket now lies wholly outside the window (marked)."""
+        if within is None or act.size == 0:
+            return act
+        out = (np.maximum(a[act], b[act]) < log_lo[act]) | (np.minimum(a[act], b[act]) > log_hi[act])
+        outside[act[out]] = True
+        return act[~out]
+
+    act = leave_window(np.flatnonzero(found & ~outside))
+    act = act[(fa[act] != 0) & (fb[act] != 0)]
     for _ in range(max_steps):
-        if within is not None and act.size:
-            out = (np.maximum(a[act], b[act]) < log_lo[act]) | (np.minimum(a[act], b[act]) > log_hi[act])
-            outside[act[out]] = True
-            act = act[~out]
         if act.size == 0:
             break
         a_, b_, fa_, fb_ = a[act], b[act], fa[act], fb[act]
@@ -262,7 +273,7 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
         halved = width <= 0.5 * ref_width[act]
         ref_width[act] = np.where(halved, width, ref_width[act])
         since[act] = np.where(halved | bisect, 0, since[act] + 1)
-        act = act[ok & (fc != 0) & (width > xtol) & (moved > xtol)]
+        act = leave_window(act[ok & (fc != 0) & (width > xtol) & (moved > xtol)])
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         pick_a = np.abs(_phase_fn(ta)) < np.abs(_phase_fn(tb))
     w = np.exp(np.where(pick_a, a, b))
@@ -300,9 +311,7 @@ def _bracket_within(mat: mna.Matrices, gm_s, omega_guess, span: float, points: i
     c0, c1 = int(used[0]), int(used[-1]) + 1  # first and last grid point of those intervals
     t = np.full((n, points), np.nan, dtype=complex)
     t[:, c0:c1 + 1] = loop_gain(mat, gm_s, grid[:, c0:c1 + 1], pencil=True)
-    im = t.imag[:, c0:c1 + 1]
-    cross = np.signbit(im[:, :-1]) != np.signbit(im[:, 1:])
-    keep = np.flatnonzero((cross & meets[:, c0:c1]).any(axis=1))
+    keep = np.flatnonzero((_sign_changes(t.imag[:, c0:c1 + 1]) & meets[:, c0:c1]).any(axis=1))
     other = np.r_[0:c0, c1 + 1:points]
     if keep.size and other.size:
         t[np.ix_(keep, other)] = loop_gain(mat, gm_s, grid[np.ix_(keep, other)], rows=keep, pencil=True)
@@ -320,13 +329,18 @@ def _best_crossing(t: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     and j + 1) where Im T changes sign with the largest interpolated Re T, and whether
     the row has any such interval."""
     im, re = t.imag, t.real
-    cross = np.signbit(im[:, :-1]) != np.signbit(im[:, 1:])
+    cross = _sign_changes(im)
     with np.errstate(invalid="ignore", divide="ignore"):
         frac = im[:, :-1] / (im[:, :-1] - im[:, 1:])
         re_x = re[:, :-1] + (re[:, 1:] - re[:, :-1]) * frac  # Re T at the crossing, interpolated
     score = np.where(cross, re_x, -np.inf)
     j = np.argmax(score, axis=1)
     return j, np.isfinite(score[np.arange(j.size), j])
+
+
+def _sign_changes(im: np.ndarray) -> np.ndarray:
+    """Per row, whether Im T changes sign between neighbouring grid points, (n, K - 1)."""
+    return np.signbit(im[:, :-1]) != np.signbit(im[:, 1:])
 
 
 def _phase_fn(t: np.ndarray) -> np.ndarray:

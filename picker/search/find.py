@@ -34,7 +34,7 @@ import numpy as np
 
 from picker.circuit.design import Design, DesignBatch, PartInfo, complete_values, style_stray_f
 from picker.circuit.device import NpnProfile
-from picker.circuit.engine import small_signal
+from picker.circuit.engine import NEAR, small_signal
 from picker.circuit import mna
 from picker.circuit.evaluate import check_designs, loaded_q_of
 from picker.circuit.checks import CAP_DERATE, COUPLING_FRACTION, MIN_LOADED_Q
@@ -80,10 +80,6 @@ STALE_CHUNKS = 2
 HAND_TYPICAL = 0.7
 #: The hybrid-pi fields carried from the nominal refine to the loaded-Q check.
 HYBRID = tuple(mna.Hybrid.__dataclass_fields__)
-#: The corners and sensitivity rows of a refined design look for their phase zero
-#: within this factor of the design's nominal one first (``engine.local_phase_zero``'s
-#: ``near``; the full local grid only where it is not there).
-NEAR = 1.03
 #: Relative step for the tolerance sensitivities.
 SENS_STEP = 0.01
 #: Positions whose tolerance derates the worst-case margin.

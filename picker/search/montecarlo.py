@@ -16,13 +16,10 @@ from __future__ import annotations
 import numpy as np
 
 from picker.circuit.design import Design, DesignBatch
-from picker.circuit.engine import evaluate_batch, small_signal
+from picker.circuit.engine import NEAR, evaluate_batch, small_signal
 
 #: Tolerance assumed for a position whose part carries none (a bound, common practice).
 UNKNOWN_TOL = 0.10
-#: A sample's phase zero is looked for within this factor of its guess first
-#: (``engine.local_phase_zero``'s ``near``; the full local grid where it is not there).
-NEAR = 1.03
 
 
 def samples(design: Design, n: int, temps_c: tuple[float, ...], seed: int) -> DesignBatch:
