@@ -25,7 +25,7 @@ Describing function of the bipolar junction: K. K. Clarke and D. T. Hess,
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy import special
@@ -191,6 +191,10 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
     lies wholly outside that window stops there and is reported as not found: its
     crossing (always inside its bracket) could not be accepted anyway.  Rows whose
     crossing is inside get the same answer as without ``within``.
+
+    Rows that end without a crossing of positive Re T get the full :func:`phase_zero`
+    (its fine grid follows the tank's bandwidth): a high-Q tank's loop circle can fall
+    between two points of the local grid.
     Returns (omega, margin) like :func:`phase_zero`.
     """
     n = gm_s.shape[0]
@@ -199,6 +203,10 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
         lo_w, hi_w = within[0] * np.exp(-1e-9), within[1] * np.exp(1e-9)
     if near is None and within is not None:
         w_a, w_b, ta, tb, found, outside = _bracket_within(mat, gm_s, omega_guess, span, points, lo_w, hi_w)
+        rows, got = _hidden_brackets(mat, gm_s, omega_guess, outside, lo_w, hi_w, span ** (2.0 / (points - 1)))
+        for whole, part in zip((w_a, w_b, ta, tb, found), got):
+            whole[rows] = part
+        outside[rows] = False
     elif near is None:
         w_a, w_b, ta, tb, found = _bracket(mat, gm_s, omega_guess, span, points)
     else:
@@ -279,7 +287,61 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
     w = np.exp(np.where(pick_a, a, b))
     m = np.where(pick_a, ta.real, tb.real)
     found &= (m > 0) & ~outside
-    return np.where(found, w, np.nan), np.where(found, m, 0.0)
+    w, m = np.where(found, w, np.nan), np.where(found, m, 0.0)
+    # Rows left without a crossing of positive Re T: a loop circle narrower than the grid's
+    # steps (a high-Q tank, the guess on the circle's far side) is stepped over; those rows
+    # get the full scan, whose fine grid is spaced by the tank's own bandwidth.
+    miss = np.flatnonzero(~found & ~outside)
+    if miss.size:
+        w_f, m_f = phase_zero(_rows_of(mat, miss), gm_s[miss], omega_guess[miss])
+        if within is not None:  # as above: a crossing outside the window is not an answer
+            out = ~((w_f >= lo_w[miss]) & (w_f <= hi_w[miss]))
+            w_f, m_f = np.where(out, np.nan, w_f), np.where(out, 0.0, m_f)
+        w[miss], m[miss] = w_f, m_f
+    return w, m
+
+
+#: How far from its tank pole (in units of the pole's damping, |Re s|) a loop circle's
+#: phase zero is looked for: beyond 10, the circle's point is within 1 % of its diameter
+#: of the background (tan 84.3 degrees = 10), no longer the resonance's.
+HIDE_DAMPINGS = 10.0
+
+
+def _hidden_brackets(mat: mna.Matrices, gm_s, omega_guess, settled, lo, hi, step: float):
+    """Brackets for rows ``settled`` as outside the window [``lo``, ``hi``] whose loop circle
+    could hide in it between grid points of ratio ``step``: the passive tank pole nearest
+    the guess (eigenvalues, some 7 us a row) is narrower (2 |Re s|) than four steps and within
+    HIDE_DAMPINGS of the window.  Those are looked at again on a grid over the pole's
+    +-HIDE_DAMPINGS dampings, densest at the pole (0.3 of a damping apart there); a wider
+    circle shows its sign changes on the grid.  Returns the rows where a crossing was found
+    and :func:`_bracket`'s tuple for them."""
+    rows = np.flatnonzero(settled)
+    empty = (rows[:0], (np.zeros(0), np.zeros(0), np.zeros(0, complex), np.zeros(0, complex), np.zeros(0, bool)))
+    if rows.size == 0:
+        return empty
+    pole = dominant_pair(mna.natural_frequencies(_rows_of(mat, rows), np.zeros(rows.size)), omega_guess[rows])
+    wp, sig = np.abs(pole.imag), np.abs(pole.real)
+    with np.errstate(invalid="ignore"):
+        sus = ((2 * sig < 4 * (step - 1) * wp) & (wp + HIDE_DAMPINGS * sig >= lo[rows])
+               & (wp - HIDE_DAMPINGS * sig <= hi[rows]))
+    rows, wp, sig = rows[sus], wp[sus], sig[sus]
+    if rows.size == 0:
+        return empty
+    grid = np.maximum(wp[:, None] + sig[:, None] * HIDE_GRID[None, :], 0.5 * wp[:, None])
+    t = loop_gain(mat, gm_s, grid, rows=rows, pencil=True)
+    j, found = _best_crossing(t)
+    k = np.arange(rows.size)
+    return rows[found], (grid[k, j][found], grid[k, j + 1][found], t[k, j][found], t[k, j + 1][found],
+                         found[found])
+
+
+#: The grid of :func:`_hidden_brackets` in dampings from the pole: 21 points, sinh-spaced.
+HIDE_GRID = np.sinh(np.linspace(-np.arcsinh(HIDE_DAMPINGS), np.arcsinh(HIDE_DAMPINGS), 21))
+
+
+def _rows_of(mat: mna.Matrices, rows: np.ndarray) -> mna.Matrices:
+    """The matrices of the batch's ``rows`` only."""
+    return replace(mat, g=mat.g[rows], c=mat.c[rows])
 
 
 def _bracket(mat: mna.Matrices, gm_s, omega_guess, span: float, points: int, rows: np.ndarray | None = None):

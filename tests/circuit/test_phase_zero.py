@@ -93,3 +93,56 @@ def test_pencil_solve_matches_lapack_and_marks_singular_systems():
     want = np.linalg.solve(a[ok], np.broadcast_to(rhs, (ok.sum(), k, size))[..., None])[..., 0]
     np.testing.assert_allclose(got[ok], want, rtol=1e-9, atol=1e-12 * np.abs(want).max())
     assert np.isnan(got[3]).all()
+
+
+def test_a_narrow_loop_circle_between_grid_points_is_still_found():
+    """A high-Q Clapp (2.7 mH with 11.3 ohm, C1 = C2 = 47 nF, C3 = 1.8 nF; a design a random
+    drawer of the exactness tests turned up) has a loop circle about 1 % of its frequency
+    wide.  Its designs with one value 1 % high, searched from the nominal design's crossing
+    (the corners' and sensitivity rows' guess), put the guess on the circle's far side
+    between two points of the local grid (3 % and 7 % steps); the search must still land
+    on the full scan's crossing, with and without ``near``."""
+    from picker.circuit.design import Design, PartInfo
+
+    base = {"L1": 2.7e-3, "C1": 47e-9, "C2": 47e-9, "C3": 1.8e-9, "R1": 33e3, "R2": 33e3, "RE": 2.2e3,
+            "RE1": 100.0, "RC": 2.2e3, "CC1": 47e-9, "CC2": 4.7e-9, "CE": 1e-6}
+    parts = {"L1": PartInfo(dcr_ohm=11.3)}
+    variants = [base] + [{**base, k: v * 1.01} for k, v in base.items() if k in ("L1", "C1", "C2", "C3", "RC")]
+    batch = DesignBatch.from_designs([Design("clapp", v, style="breadboard", parts=parts) for v in variants])
+    full = evaluate_batch(batch, large_signal=False)
+    assert np.isfinite(full.freq_loop_hz).all() and (full.margin > 1).all()
+    guess = np.full(batch.n, 2 * np.pi * full.freq_loop_hz[0])
+    for near in (None, 1.03):
+        local = small_signal(batch, omega_guess=guess, near=near)
+        np.testing.assert_allclose(local.freq_loop_hz, full.freq_loop_hz, rtol=FREQ_RTOL)
+        np.testing.assert_allclose(local.margin, full.margin, rtol=MARGIN_RTOL)
+
+
+def test_a_loop_circle_hidden_inside_the_window_is_not_settled_as_outside():
+    """A common-emitter Colpitts at 455 kHz from the benchmark's synthetic drawer (12 uH with
+    0.304 ohm, 13 nF / 47 nF): with ``within`` (the target +-1 %), the window's grid points
+    (6.8 % apart) all have Im T > 0 and the row would be settled as outside, though its
+    crossing, 0.1 % above the guess, is inside.  The tank pole's check finds it, with the
+    full scan's frequency and margin."""
+    from picker.circuit import engine
+    from picker.circuit.design import Design, PartInfo
+    from picker.circuit.device import NpnProfile
+
+    values = {"L1": 12e-6, "C1": 13e-9, "C2": 47e-9, "R1": 590e3, "R2": 511e3, "RE": 8.06e3, "RE1": 200.0,
+              "RC": 6.49e3, "CC1": 1.1e-9, "CC2": 82e-12, "CE": 30e-9}
+    npn = NpnProfile(name="npn-high-gain", hfe_min=350.0, hfe_max=850.0, ft_hz=150e6, cob_f=5e-12)
+    batch = DesignBatch.from_designs([Design("colpitts-ce", values, npn=npn, style="breadboard",
+                                             parts={"L1": PartInfo(dcr_ohm=0.304)})])
+    full = evaluate_batch(batch, large_signal=False)
+    assert np.isfinite(full.freq_loop_hz[0]) and full.margin[0] > 1
+    guess = 2 * np.pi * full.freq_loop_hz / 1.001
+    lo, hi = guess * 0.99, guess * 1.01
+    # the case this test is for: the grid alone settles the row as outside
+    model = engine.model_of(batch)
+    dc = engine.solve_dc(*engine.dc_network(batch), batch.vcc_v, model, batch.temp_c)
+    hy = engine.hybrid_at(dc, model, batch.temp_c)
+    settled = engine._bracket_within(mna.assemble(batch, hy), hy.gm_s, guess, 1.3, 9, lo, hi)[5]
+    assert settled[0]
+    boxed = small_signal(batch, omega_guess=guess, within=(lo, hi))
+    np.testing.assert_allclose(boxed.freq_loop_hz, full.freq_loop_hz, rtol=FREQ_RTOL)
+    np.testing.assert_allclose(boxed.margin, full.margin, rtol=MARGIN_RTOL)

@@ -164,3 +164,50 @@ def test_yield_band_stops_only_samples_outside_it(found):
     np.testing.assert_array_equal(m_b[inside], m_all[inside])
     out = np.isfinite(f_all) & ((f_all < lo * (1 - 1e-6)) | (f_all > hi * (1 + 1e-6)))
     assert (np.isnan(f_b[out]) | (f_b[out] < lo) | (f_b[out] > hi)).all()
+
+
+def _series_drawer():
+    """Every E96 resistor 10 ohm-1 Mohm, E24 capacitor 10 pF-10 uF and E12 inductor
+    1 uH-10 mH (values from the eseries package, IEC 60063), coils with an invented DCR
+    law (0.05 ohm at 1 uH to 30 ohm at 10 mH), one high-gain transistor."""
+    import eseries
+
+    def lines(kind, series, lo, hi, **kw):
+        v = np.array(list(eseries.erange(getattr(eseries, series), lo, hi)), dtype=float)
+        df = pd.DataFrame({"id": np.arange(v.size) + {"resistor": 0, "capacitor": 10_000, "inductor": 20_000}[kind],
+                           {"resistor": "r_ohm", "capacitor": "c_f", "inductor": "l_h"}[kind]: v,
+                           "tolerance": 0.05, "qty": 20, "unit_cost": 0.1, "bin": "B", "dielectric": "c0g",
+                           "voltage_v": 50.0, "power_w": 0.25,
+                           "dcr_ohm": 0.05 * (v / 1e-6) ** (np.log(600) / np.log(1e4)) if kind == "inductor" else 0.0})
+        return Lines.from_frame(kind, df)
+
+    npn = NpnProfile(name="npn-high-gain", hfe_min=350.0, hfe_max=850.0, ft_hz=150e6, cob_f=5e-12)
+    return Drawer({"resistor": lines("resistor", "E96", 10.0, 1.0001e6),
+                   "capacitor": lines("capacitor", "E24", 10e-12, 10.0001e-6),
+                   "inductor": lines("inductor", "E12", 1e-6, 10.0001e-3)}, (Npn(npn, 1, 20, 0.2, "Q"),))
+
+
+@pytest.mark.parametrize("topology", ["colpitts-ce", "clapp"])
+def test_nominal_refine_keeps_exactly_the_rows_the_full_scan_accepts(topology):
+    """The nominal refine searches locally around the screen's frequency and drops rows as
+    soon as their bracket leaves the accepted window; on the best 3,000 screened rows of a
+    drawer of every E-series value, the rows it keeps, and their figures, are those the
+    engine's full scan (the phase-zero search of the full check) accepts by the same rule."""
+    from picker.circuit.engine import small_signal
+    from picker.search import find as F
+    from picker.search.space import FREQ_SLACK
+
+    d = _series_drawer()
+    spec = FindSpec(freq_hz=455e3, tol=0.01, topologies=(topology,), min_margin=1.5, mc=0)
+    pool = F._search_one(topology, d.npns[0], d, spec, F._new_stats(), [])
+    rows = np.arange(min(pool["it"].size, 3000))
+    got = F._nominal(pool, spec, d, F._new_stats(), rows)
+    full = small_signal(F._batch(pool, rows, spec, d.npns[0].profile.hfe_nominal, spec.nominal_c))
+    f = full.freq_loop_hz
+    ok = (np.isfinite(f) & (np.abs(f / spec.freq_hz - 1) <= spec.tol)
+          & (np.abs(2 * np.pi * f / pool["omega_s"][rows] - 1) <= FREQ_SLACK)
+          & (full.margin >= spec.min_margin) & ~np.asarray(full.dc.saturated))
+    assert 50 <= ok.sum() <= rows.size - 100  # both kinds of row are present
+    np.testing.assert_array_equal(got["rows"], rows[ok])
+    np.testing.assert_allclose(got["freq_hz"], f[ok], rtol=1e-7)
+    np.testing.assert_allclose(got["margin"], full.margin[ok], rtol=1e-6)
