@@ -302,17 +302,17 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
 
 
 #: How far from its tank pole (in units of the pole's damping, |Re s|) a loop circle's
-#: phase zero is looked for: beyond 10, the circle's point is within 1 % of its diameter
-#: of the background (tan 84.3 degrees = 10), no longer the resonance's.
+#: phase zero is looked for: 10 dampings off, the resonance adds a tenth of the circle's
+#: diameter to the background (1 / sqrt(1 + 10^2)); a crossing there is the background's.
 HIDE_DAMPINGS = 10.0
 
 
 def _hidden_brackets(mat: mna.Matrices, gm_s, omega_guess, settled, lo, hi, step: float):
     """Brackets for rows ``settled`` as outside the window [``lo``, ``hi``] whose loop circle
     could hide in it between grid points of ratio ``step``: the passive tank pole nearest
-    the guess (eigenvalues, some 7 us a row) is narrower (2 |Re s|) than four steps and within
+    the guess (eigenvalues, some 7 us a row) is narrower (2 |Re s|) than one step and within
     HIDE_DAMPINGS of the window.  Those are looked at again on a grid over the pole's
-    +-HIDE_DAMPINGS dampings, densest at the pole (0.3 of a damping apart there); a wider
+    +-HIDE_DAMPINGS dampings, densest at the pole (half a damping apart there); a wider
     circle shows its sign changes on the grid.  Returns the rows where a crossing was found
     and :func:`_bracket`'s tuple for them."""
     rows = np.flatnonzero(settled)
@@ -322,7 +322,7 @@ def _hidden_brackets(mat: mna.Matrices, gm_s, omega_guess, settled, lo, hi, step
     pole = dominant_pair(mna.natural_frequencies(_rows_of(mat, rows), np.zeros(rows.size)), omega_guess[rows])
     wp, sig = np.abs(pole.imag), np.abs(pole.real)
     with np.errstate(invalid="ignore"):
-        sus = ((2 * sig < 4 * (step - 1) * wp) & (wp + HIDE_DAMPINGS * sig >= lo[rows])
+        sus = ((2 * sig < (step - 1) * wp) & (wp + HIDE_DAMPINGS * sig >= lo[rows])
                & (wp - HIDE_DAMPINGS * sig <= hi[rows]))
     rows, wp, sig = rows[sus], wp[sus], sig[sus]
     if rows.size == 0:
@@ -335,8 +335,8 @@ def _hidden_brackets(mat: mna.Matrices, gm_s, omega_guess, settled, lo, hi, step
                          found[found])
 
 
-#: The grid of :func:`_hidden_brackets` in dampings from the pole: 21 points, sinh-spaced.
-HIDE_GRID = np.sinh(np.linspace(-np.arcsinh(HIDE_DAMPINGS), np.arcsinh(HIDE_DAMPINGS), 21))
+#: The grid of :func:`_hidden_brackets` in dampings from the pole: 13 points, sinh-spaced.
+HIDE_GRID = np.sinh(np.linspace(-np.arcsinh(HIDE_DAMPINGS), np.arcsinh(HIDE_DAMPINGS), 13))
 
 
 def _rows_of(mat: mna.Matrices, rows: np.ndarray) -> mna.Matrices:
