@@ -190,7 +190,9 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
     With ``within`` (lowest, highest acceptable omega per row), a row whose bracket
     lies wholly outside that window stops there and is reported as not found: its
     crossing (always inside its bracket) could not be accepted anyway.  Rows whose
-    crossing is inside get the same answer as without ``within``.
+    crossing is inside get the same answer as without ``within``.  A row that the window's
+    own grid points settle as outside is first looked at again around its passive tank
+    pole when that pole is narrow enough to hide between them (:func:`_hidden_brackets`).
 
     Rows that end without a crossing of positive Re T get the full :func:`phase_zero`
     (its fine grid follows the tank's bandwidth): a high-Q tank's loop circle can fall
