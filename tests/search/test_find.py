@@ -211,3 +211,23 @@ def test_nominal_refine_keeps_exactly_the_rows_the_full_scan_accepts(topology):
     np.testing.assert_array_equal(got["rows"], rows[ok])
     np.testing.assert_allclose(got["freq_hz"], f[ok], rtol=1e-7)
     np.testing.assert_allclose(got["margin"], full.margin[ok], rtol=1e-6)
+
+
+@pytest.mark.parametrize("topology", ["colpitts-ce", "clapp"])
+def test_corner_and_sensitivity_rows_land_on_the_full_scans_phase_zero(topology):
+    """The worst case's hFE x temperature corners and +1 % sensitivity rows are searched from
+    their row's nominal crossing (``near``); on the drawer of every E-series value their
+    frequencies and margins are the engine's full scan's, row for row."""
+    from picker.circuit.engine import NEAR, small_signal
+    from picker.search import find as F
+
+    d = _series_drawer()
+    spec = FindSpec(freq_hz=455e3, tol=0.01, topologies=(topology,), min_margin=1.5, mc=0)
+    pool = F._search_one(topology, d.npns[0], d, spec, F._new_stats(), [])
+    nom = F._nominal(pool, spec, d, F._new_stats(), np.arange(min(pool["it"].size, 3000)))
+    batch, guess, _ = F._worst_batch(pool, nom["rows"][:100], nom["omega"][:100], spec)
+    f, margin, _, _ = F._engine_many([batch], [guess], NEAR)[0]
+    full = small_signal(batch)
+    assert batch.n >= 1000 and np.isfinite(full.freq_loop_hz).mean() > 0.9
+    np.testing.assert_allclose(f, full.freq_loop_hz, rtol=1e-7, equal_nan=True)
+    np.testing.assert_allclose(margin, full.margin, rtol=1e-6)
