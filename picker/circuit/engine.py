@@ -206,9 +206,9 @@ def local_phase_zero(mat: mna.Matrices, gm_s, omega_guess, span=1.3, points=9, x
     if near is None and within is not None:
         w_a, w_b, ta, tb, found, outside = _bracket_within(mat, gm_s, omega_guess, span, points, lo_w, hi_w)
         rows, got = _hidden_brackets(mat, gm_s, omega_guess, outside, lo_w, hi_w, span ** (2.0 / (points - 1)))
-        for whole, part in zip((w_a, w_b, ta, tb, found), got):
+        for whole, part in zip((w_a, w_b, ta, tb), got):
             whole[rows] = part
-        outside[rows] = False
+        found[rows], outside[rows] = True, False
     elif near is None:
         w_a, w_b, ta, tb, found = _bracket(mat, gm_s, omega_guess, span, points)
     else:
@@ -316,11 +316,10 @@ def _hidden_brackets(mat: mna.Matrices, gm_s, omega_guess, settled, lo, hi, step
     HIDE_DAMPINGS of the window.  Those are looked at again on a grid over the pole's
     +-HIDE_DAMPINGS dampings, densest at the pole (half a damping apart there); a wider
     circle shows its sign changes on the grid.  Returns the rows where a crossing was found
-    and :func:`_bracket`'s tuple for them."""
+    and their brackets: ends (rad/s) and T at them, as :func:`_bracket`."""
     rows = np.flatnonzero(settled)
-    empty = (rows[:0], (np.zeros(0), np.zeros(0), np.zeros(0, complex), np.zeros(0, complex), np.zeros(0, bool)))
     if rows.size == 0:
-        return empty
+        return rows, ()
     pole = dominant_pair(mna.natural_frequencies(_rows_of(mat, rows), np.zeros(rows.size)), omega_guess[rows])
     wp, sig = np.abs(pole.imag), np.abs(pole.real)
     with np.errstate(invalid="ignore"):
@@ -328,13 +327,12 @@ def _hidden_brackets(mat: mna.Matrices, gm_s, omega_guess, settled, lo, hi, step
                & (wp - HIDE_DAMPINGS * sig <= hi[rows]))
     rows, wp, sig = rows[sus], wp[sus], sig[sus]
     if rows.size == 0:
-        return empty
+        return rows, ()
     grid = np.maximum(wp[:, None] + sig[:, None] * HIDE_GRID[None, :], 0.5 * wp[:, None])
     t = loop_gain(mat, gm_s, grid, rows=rows, pencil=True)
     j, found = _best_crossing(t)
-    k = np.arange(rows.size)
-    return rows[found], (grid[k, j][found], grid[k, j + 1][found], t[k, j][found], t[k, j + 1][found],
-                         found[found])
+    k, j = np.flatnonzero(found), j[found]
+    return rows[k], (grid[k, j], grid[k, j + 1], t[k, j], t[k, j + 1])
 
 
 #: The grid of :func:`_hidden_brackets` in dampings from the pole: 13 points, sinh-spaced.

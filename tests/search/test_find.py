@@ -1,5 +1,7 @@
 """find on small drawers: the known design is found, every candidate re-checks, and the reasons."""
 
+import functools
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -172,7 +174,7 @@ def _series_drawer():
     law (0.05 ohm at 1 uH to 30 ohm at 10 mH), one high-gain transistor."""
     import eseries
 
-    def lines(kind, series, lo, hi, **kw):
+    def lines(kind, series, lo, hi):
         v = np.array(list(eseries.erange(getattr(eseries, series), lo, hi)), dtype=float)
         df = pd.DataFrame({"id": np.arange(v.size) + {"resistor": 0, "capacitor": 10_000, "inductor": 20_000}[kind],
                            {"resistor": "r_ohm", "capacitor": "c_f", "inductor": "l_h"}[kind]: v,
@@ -187,6 +189,16 @@ def _series_drawer():
                    "inductor": lines("inductor", "E12", 1e-6, 10.0001e-3)}, (Npn(npn, 1, 20, 0.2, "Q"),))
 
 
+@functools.lru_cache(maxsize=None)
+def _series_pool(topology):
+    """The drawer of every E-series value, a 455 kHz +-1 % spec, and the topology's screened pool."""
+    from picker.search import find as F
+
+    d = _series_drawer()
+    spec = FindSpec(freq_hz=455e3, tol=0.01, topologies=(topology,), min_margin=1.5, mc=0)
+    return d, spec, F._search_one(topology, d.npns[0], d, spec, F._new_stats(), [])
+
+
 @pytest.mark.parametrize("topology", ["colpitts-ce", "clapp"])
 def test_nominal_refine_keeps_exactly_the_rows_the_full_scan_accepts(topology):
     """The nominal refine searches locally around the screen's frequency and drops rows as
@@ -197,9 +209,7 @@ def test_nominal_refine_keeps_exactly_the_rows_the_full_scan_accepts(topology):
     from picker.search import find as F
     from picker.search.space import FREQ_SLACK
 
-    d = _series_drawer()
-    spec = FindSpec(freq_hz=455e3, tol=0.01, topologies=(topology,), min_margin=1.5, mc=0)
-    pool = F._search_one(topology, d.npns[0], d, spec, F._new_stats(), [])
+    d, spec, pool = _series_pool(topology)
     rows = np.arange(min(pool["it"].size, 3000))
     got = F._nominal(pool, spec, d, F._new_stats(), rows)
     full = small_signal(F._batch(pool, rows, spec, d.npns[0].profile.hfe_nominal, spec.nominal_c))
@@ -221,9 +231,7 @@ def test_corner_and_sensitivity_rows_land_on_the_full_scans_phase_zero(topology)
     from picker.circuit.engine import NEAR, small_signal
     from picker.search import find as F
 
-    d = _series_drawer()
-    spec = FindSpec(freq_hz=455e3, tol=0.01, topologies=(topology,), min_margin=1.5, mc=0)
-    pool = F._search_one(topology, d.npns[0], d, spec, F._new_stats(), [])
+    d, spec, pool = _series_pool(topology)
     nom = F._nominal(pool, spec, d, F._new_stats(), np.arange(min(pool["it"].size, 3000)))
     batch, guess, _ = F._worst_batch(pool, nom["rows"][:100], nom["omega"][:100], spec)
     f, margin, _, _ = F._engine_many([batch], [guess], NEAR)[0]
